@@ -1,0 +1,30 @@
+# sightaudit: two commands do everything (see README.md).
+#   make demo   create .venv, install, run the audit on the bundled sample (out/demo/)
+#   make test   create/update .venv with the test extra, run the test suite
+
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
+
+.PHONY: demo test bench bench-accuracy clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+
+$(VENV)/.installed: pyproject.toml | $(BIN)/python
+	$(PIP) install -e .
+	@touch $@
+
+$(VENV)/.installed-test: pyproject.toml | $(BIN)/python
+	$(PIP) install -e '.[test]'
+	@touch $@ $(VENV)/.installed
+
+demo: $(VENV)/.installed
+	$(BIN)/sightaudit demo --out out/demo
+
+test: $(VENV)/.installed-test
+	$(BIN)/python -m pytest -q
+
+clean:
+	rm -rf out .pytest_cache .hypothesis

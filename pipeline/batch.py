@@ -1,0 +1,317 @@
+"""Run the audit over a road network and account for every road.
+
+The per-road stages never depend on another road. Each road ends either
+``evaluated`` or ``skipped`` with a reason; the run checks at the end that
+roads in = roads evaluated + roads skipped, and records all of it in
+``run.json``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .config import Config
+from .ingest import (DemGround, PointGround, Roads, file_sha256, is_ballpark, open_ground, read_dem_window,
+                     read_roads, transformer)
+from .profile import (FILLED, FLAG_NAMES, MISSING, bilinear, locate_points, points_along, regularise, run_lengths,
+                      station_chainages)
+
+CAUTION = (
+    "Screening results only. Every finding must be confirmed by field survey and by a licensed "
+    "engineer before any decision; local design codes and agency policy govern."
+)
+
+
+# --------------------------------------------------------------------- progress
+class Progress:
+    """What the pipeline tells the user while it runs. This one says nothing."""
+
+    @contextlib.contextmanager
+    def stage(self, name: str, total: int | None = None):
+        yield lambda n=1: None
+
+    def message(self, text: str) -> None:
+        pass
+
+
+# ---------------------------------------------------------------- per road
+@dataclass
+class RoadOutcome:
+    road_id: str
+    status: str = "evaluated"
+    reason: str | None = None
+    notes: list[tuple[str, float | None, float | None, str]] = field(default_factory=list)
+    profile: pd.DataFrame | None = None
+
+    def skip(self, reason: str) -> "RoadOutcome":
+        self.status, self.reason = "skipped", reason
+        return self
+
+
+class GroundSampler:
+    """Ground elevation along one road at a time, from a DEM or from ground points."""
+
+    def __init__(self, ground: DemGround | PointGround, roads: Roads, cfg: Config):
+        self.ground = ground
+        self.roads = roads
+        self.cfg = cfg
+        self._tr: dict[str, object] = {}
+        self.points_dropped = 0
+        self.points_used = 0
+        self.notes: list[str] = []
+
+    def _to_ground(self, key: str):
+        if key not in self._tr:
+            src = self.roads.work_crs[key]
+            tr = transformer(src, self.ground.crs)
+            self._tr[key] = tr
+            tr.transform(*self._probe(key))
+            if is_ballpark(tr):
+                self.notes.append(
+                    f"transform from {src.name!r} to {self.ground.crs.name!r} has no datum-shift grid "
+                    f"(PROJ 'ballpark'); ground positions may be metres off: give both in the same datum"
+                )
+        return self._tr[key]
+
+    def _probe(self, key: str):
+        line = self.roads.table.loc[self.roads.table["work_key"] == key, "geometry"].dropna().iloc[0]
+        x, y = points_along(line, np.array([0.0]))
+        return x, y
+
+    def sample(self, line, key: str, road_id: str, stations: np.ndarray) -> tuple[np.ndarray, np.ndarray, list]:
+        """``(z_m, flag, notes)`` at ``stations`` (chainage m)."""
+        step, max_gap = self.cfg["profile.step_m"], self.cfg["profile.max_gap_m"]
+        notes: list = []
+        if isinstance(self.ground, DemGround):
+            sx, sy = points_along(line, stations)
+            gx, gy = self._to_ground(key).transform(sx, sy)
+            gx, gy = np.asarray(gx), np.asarray(gy)
+            arr, aff = read_dem_window(self.ground, gx, gy)
+            if arr is None:
+                z = np.full(len(stations), np.nan)
+            else:
+                z = bilinear(arr, aff, gx, gy)
+            zs, flag = regularise(stations, z, stations, step, max_gap)
+            return zs, flag, notes
+        pts = self.ground.by_road.get(road_id)
+        if pts is None or len(pts) == 0:
+            return np.full(len(stations), np.nan), np.full(len(stations), MISSING, dtype=np.int8), notes
+        if self.ground.mode == "chainage":
+            chain = pts["chainage_m"].to_numpy()
+            length = float(stations[-1]) if len(stations) else 0.0
+            beyond = (chain < -step) | (chain > length + step)
+            if beyond.any():
+                notes.append(("ground points beyond the road's ends dropped", None, None, f"{int(beyond.sum())} points"))
+            chain, z = chain[~beyond], pts["z_m"].to_numpy()[~beyond]
+            self.points_used += len(chain)
+        else:
+            tr = transformer(self.ground.crs, self.roads.work_crs[key])
+            px, py = tr.transform(pts["x"].to_numpy(), pts["y"].to_numpy())
+            chain, offset = locate_points(line, np.asarray(px), np.asarray(py))
+            far = np.abs(offset) > self.cfg["ground.max_offset_m"]
+            if far.any():
+                self.points_dropped += int(far.sum())
+                notes.append(("ground points too far from the centreline dropped", None, None,
+                              f"{int(far.sum())} of {len(far)} points beyond {self.cfg['ground.max_offset_m']:g} m"))
+            chain, z = chain[~far], pts["z_m"].to_numpy()[~far]
+            self.points_used += len(chain)
+        zs, flag = regularise(chain, z, stations, step, max_gap)
+        return zs, flag, notes
+
+
+def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source) -> RoadOutcome:
+    """Stations and ground elevation for one road (the profile stage)."""
+    out = RoadOutcome(road_id=row["road_id"])
+    if isinstance(row["skip_reason"], str):
+        return out.skip(row["skip_reason"])
+    line = row["geometry"]
+    stations = station_chainages(row["length_m"], cfg["profile.step_m"])
+    z, flag, notes = sampler.sample(line, row["work_key"], row["road_id"], stations)
+    out.notes.extend(notes)
+    have = np.isfinite(z)
+    if not have.any():
+        return out.skip("no ground data along the road (off the DEM, all nodata, or no ground points)")
+    if have.sum() < 3:
+        return out.skip("fewer than 3 stations with ground data")
+    missing = ~have
+    if missing.any():
+        step = cfg["profile.step_m"]
+        for a, b in run_lengths(missing):
+            out.notes.append(("ground data missing", float(stations[a]), float(stations[b - 1]),
+                              f"{(b - a) * step:g} m without ground data; not evaluated there"))
+    if (flag == FILLED).any():
+        for a, b in run_lengths(flag == FILLED):
+            out.notes.append(("short ground gap interpolated", float(stations[a]), float(stations[b - 1]),
+                              "elevations filled linearly across the gap and marked 'filled'"))
+    x, y = points_along(line, stations)
+    if to_source is not None:
+        x, y = to_source.transform(x, y)
+    out.profile = pd.DataFrame({
+        "road_id": row["road_id"],
+        "chainage_m": stations,
+        "x": np.asarray(x, dtype=float),
+        "y": np.asarray(y, dtype=float),
+        "ground_z_m": z,
+        "ground_flag": FLAG_NAMES[flag],
+    })
+    return out
+
+
+# ------------------------------------------------------------------ network run
+@dataclass
+class NetworkResult:
+    roads: Roads
+    outcomes: list[RoadOutcome]
+    timings: dict[str, float]
+    ground_info: dict
+    notes: list[str]
+
+    @property
+    def profiles(self) -> pd.DataFrame:
+        frames = [o.profile for o in self.outcomes if o.profile is not None]
+        if not frames:
+            return empty_profiles()
+        return pd.concat(frames, ignore_index=True)
+
+    def road_table(self) -> pd.DataFrame:
+        t = self.roads.table
+        status = {o.road_id: o for o in self.outcomes}
+        return pd.DataFrame({
+            "road_id": t["road_id"],
+            "name": t["name"],
+            "road_class": t["road_class"],
+            "length_m": t["length_m"].round(2),
+            "status": [status[r].status for r in t["road_id"]],
+            "reason": [status[r].reason for r in t["road_id"]],
+        })
+
+    def data_notes(self) -> pd.DataFrame:
+        rows = [
+            {"road_id": o.road_id, "note": n[0], "from_m": n[1], "to_m": n[2], "detail": n[3]}
+            for o in self.outcomes for n in o.notes
+        ]
+        return pd.DataFrame(rows, columns=["road_id", "note", "from_m", "to_m", "detail"])
+
+
+def empty_profiles() -> pd.DataFrame:
+    return pd.DataFrame({
+        "road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float), "x": pd.Series(dtype=float),
+        "y": pd.Series(dtype=float), "ground_z_m": pd.Series(dtype=float), "ground_flag": pd.Series(dtype=str),
+    })
+
+
+def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
+                progress: Progress | None = None) -> NetworkResult:
+    """Ingest and the per-road stages for a whole network."""
+    progress = progress or Progress()
+    timings: dict[str, float] = {}
+    t0 = time.perf_counter()
+    with progress.stage("reading roads and ground") as tick:
+        roads = read_roads(roads_path, cfg)
+        ground = open_ground(ground_path, cfg, roads)
+        tick()
+    timings["ingest"] = time.perf_counter() - t0
+
+    t0 = time.perf_counter()
+    sampler = GroundSampler(ground, roads, cfg)
+    back = {key: (None if crs is roads.source_crs else transformer(crs, roads.source_crs))
+            for key, crs in roads.work_crs.items()}
+    outcomes: list[RoadOutcome] = []
+    table = roads.table
+    with progress.stage("building profiles", total=len(table)) as tick:
+        for _, row in table.iterrows():
+            outcomes.append(road_profile(row, sampler, cfg, back.get(row["work_key"])))
+            tick()
+    timings["profile"] = time.perf_counter() - t0
+
+    ground_info = ground.describe() | {"path": str(ground.path)}
+    if isinstance(ground, PointGround):
+        ground_info["points_used"] = sampler.points_used
+        ground_info["points_dropped_offset"] = sampler.points_dropped
+        unknown = sorted(set(ground.by_road) - set(table["road_id"]))
+        if unknown:
+            ground_info["points_for_unknown_roads"] = len(unknown)
+            roads.notes.append(f"ground points for {len(unknown)} road id(s) not in the roads file ignored "
+                               f"(e.g. {unknown[0]!r})")
+    return NetworkResult(roads=roads, outcomes=outcomes, timings=timings, ground_info=ground_info,
+                         notes=roads.notes + sampler.notes)
+
+
+def accounting(result: NetworkResult) -> dict:
+    """Counts of roads in, evaluated and skipped (with reasons); checks they add up."""
+    n_in = len(result.roads.table)
+    evaluated = [o for o in result.outcomes if o.status == "evaluated"]
+    skipped = [o for o in result.outcomes if o.status == "skipped"]
+    if n_in != len(evaluated) + len(skipped) or len(result.outcomes) != n_in:
+        raise RuntimeError(f"road accounting broken: {n_in} in, {len(evaluated)} evaluated, {len(skipped)} skipped")
+    by_reason: dict[str, int] = {}
+    for o in skipped:
+        by_reason[o.reason] = by_reason.get(o.reason, 0) + 1
+    return {
+        "in": n_in,
+        "evaluated": len(evaluated),
+        "skipped": len(skipped),
+        "skipped_by_reason": by_reason,
+        "skipped_roads": [{"road_id": o.road_id, "reason": o.reason} for o in skipped],
+    }
+
+
+def network_summary(result: NetworkResult) -> pd.DataFrame:
+    """Roads and km in and evaluated, and ground coverage, by road class (``sql/network_summary.sql``)."""
+    from .sqlrun import run_sql
+
+    prof = result.profiles[["road_id", "chainage_m", "ground_flag"]]
+    return run_sql("network_summary", {"roads": result.road_table(), "stations": prof})
+
+
+def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_dir: str | Path,
+              progress: Progress | None = None, command: list[str] | None = None) -> dict:
+    """The whole audit: read, compute, write every output into ``out_dir``.
+
+    Outputs are written to a temporary folder beside ``out_dir`` and moved into
+    place only when complete. Returns the run summary (also in ``run.json``).
+    """
+    from .export import staging_folder, write_outputs
+
+    progress = progress or Progress()
+    started = datetime.now(timezone.utc)
+    out_dir = Path(out_dir)
+    with staging_folder(out_dir) as tmp:
+        result = run_network(roads_path, ground_path, cfg, progress)
+        t0 = time.perf_counter()
+        summary = {
+            "tool": "sightaudit",
+            "version": __version__,
+            "command": command,
+            "started_utc": started.isoformat(timespec="seconds"),
+            "config": cfg.as_dict(),
+            "config_file": cfg.source,
+            "inputs": {
+                "roads": {"path": str(Path(roads_path)), "sha256": file_sha256(roads_path),
+                          "crs": result.roads.source_crs.to_string()},
+                "ground": {"sha256": file_sha256(ground_path)} | result.ground_info,
+            },
+            "working_crs": {k: v.name for k, v in result.roads.work_crs.items()},
+            "roads": accounting(result),
+            "network_by_class": network_summary(result).to_dict(orient="records"),
+            "notes": result.notes,
+            "stage_seconds": result.timings,
+            "caution": CAUTION,
+        }
+        with progress.stage("writing outputs"):
+            write_outputs(tmp, result, summary)
+        result.timings["export"] = time.perf_counter() - t0
+        summary["finished_utc"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+        from .export import write_run_json
+
+        write_run_json(tmp / "run.json", summary)
+    return summary
+

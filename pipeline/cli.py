@@ -1,0 +1,182 @@
+"""The ``sightaudit`` command: parses arguments, shows progress, calls the pipeline.
+
+Exit codes: 0 success; 2 unusable input (a one-line reason naming the file,
+row or road, and what to fix); 1 an internal error (a bug: please report it).
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import sys
+import time
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+
+DESCRIPTION = (
+    "Screening audit of rural roads for stopping-sight-distance (SSD) shortfalls on crest and "
+    "sag vertical curves, from road centrelines and a ground model (DEM or ground points)."
+)
+
+# command-line flag -> config key (a flag overrides the config file)
+RUN_FLAGS = [
+    ("--id-column", "roads.id_column", str, "column with the road identifier [road_id]"),
+    ("--speed-column", "roads.speed_column", str, "column with the speed to judge each road at [speed_kmh]"),
+    ("--roads-layer", "roads.layer", str, "GeoPackage layer holding the centrelines"),
+    ("--roads-crs", "roads.crs", str, "CRS of a roads CSV, e.g. EPSG:32633"),
+    ("--ground-crs", "ground.crs", str, "CRS of ground points or DEM when the file has none"),
+    ("--elevation-unit", "ground.elevation_unit", str, "ground elevation unit: m, ft or us_ft [m]"),
+    ("--step-m", "profile.step_m", float, "station spacing along the road, metres [5]"),
+]
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="sightaudit", description=DESCRIPTION)
+    p.add_argument("--version", action="version", version=f"sightaudit {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+
+    def common(sp):
+        g = sp.add_mutually_exclusive_group()
+        g.add_argument("-q", "--quiet", action="store_true", help="print errors only")
+        g.add_argument("-v", "--verbose", action="store_true", help="print more detail (and tracebacks)")
+
+    run = sub.add_parser("run", help="audit a road network", description=(
+        "Audit a road network: rebuild each road's profile from the ground data, recover its "
+        "vertical curves, measure sight distance both ways and rank the SSD deficiencies."))
+    run.add_argument("--roads", required=True, metavar="PATH",
+                     help="road centrelines: GeoPackage, GeoParquet, or CSV with a WKT column")
+    run.add_argument("--ground", required=True, metavar="PATH",
+                     help="ground model: DEM GeoTIFF, or ground points (CSV/GPKG: road_id, x, y, z)")
+    run.add_argument("--config", metavar="FILE.toml", help="settings file (flags below override it)")
+    run.add_argument("--out", required=True, metavar="DIR", help="output folder (replaced if it holds an earlier run)")
+    for flag, key, typ, text in RUN_FLAGS:
+        run.add_argument(flag, dest=key, type=typ, default=None, help=text)
+    common(run)
+
+    demo = sub.add_parser("demo", help="run the audit on the bundled sample network",
+                          description="Run the whole audit on the bundled Wendle Vale sample network.")
+    demo.add_argument("--out", default="out/demo", metavar="DIR", help="output folder [out/demo]")
+    common(demo)
+    return p
+
+
+class _PlainProgress:
+    """One line per finished stage, for logs (stderr is not a terminal)."""
+
+    def __init__(self, stream):
+        self.stream = stream
+
+    @contextlib.contextmanager
+    def stage(self, name: str, total: int | None = None):
+        t0 = time.perf_counter()
+        count = [0]
+
+        def tick(n: int = 1):
+            count[0] += n
+
+        yield tick
+        what = f", {count[0]} of {total}" if total is not None else ""
+        print(f"{name}{what} ({time.perf_counter() - t0:.1f} s)", file=self.stream)
+
+    def message(self, text: str) -> None:
+        print(text, file=self.stream)
+
+
+class _RichProgress:
+    """Progress bars on stderr, one per stage, with a per-road count and ETA."""
+
+    def __init__(self, console):
+        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
+                                   TimeRemainingColumn)
+
+        self.console = console
+        self._cols = (TextColumn("{task.description:<28}"), BarColumn(), MofNCompleteColumn(),
+                      TimeElapsedColumn(), TextColumn("eta"), TimeRemainingColumn())
+        self._progress_cls = Progress
+
+    @contextlib.contextmanager
+    def stage(self, name: str, total: int | None = None):
+        with self._progress_cls(*self._cols, console=self.console, transient=False) as prog:
+            task = prog.add_task(name, total=total if total is not None else 1)
+
+            def tick(n: int = 1):
+                prog.advance(task, n)
+
+            yield tick
+            prog.update(task, completed=total if total is not None else 1)
+
+    def message(self, text: str) -> None:
+        self.console.print(text)
+
+
+def _progress(args):
+    from .batch import Progress
+
+    if args.quiet:
+        return Progress()
+    if not sys.stderr.isatty():
+        return _PlainProgress(sys.stderr)
+    from rich.console import Console
+
+    return _RichProgress(Console(stderr=True))
+
+
+def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
+    if quiet:
+        return
+    r = summary["roads"]
+    print(f"Output folder: {out.resolve()}")
+    print(f"Roads: {r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped")
+    for reason, n in r["skipped_by_reason"].items():
+        print(f"  skipped ({n}): {reason}")
+    secs = sum(summary["stage_seconds"].values())
+    print(f"Time: {secs:.1f} s")
+    print("Screening results only: confirm by field survey and a licensed engineer; local codes govern.")
+
+
+def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> int:
+    from .batch import run_audit
+    from .config import load_config
+
+    cfg = load_config(config, overrides)
+    out = Path(args.out)
+    summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:])
+    _print_summary(summary, out, args.quiet)
+    return 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    if args.command is None:
+        _parser().print_help()
+        return 0
+    start = time.perf_counter()
+    try:
+        if args.command == "run":
+            overrides = {key: getattr(args, key) for _, key, _, _ in RUN_FLAGS}
+            return _run(args, args.roads, args.ground, overrides, args.config)
+        if args.command == "demo":
+            from .resources import sample_paths
+
+            paths = sample_paths()
+            return _run(args, str(paths["roads"]), str(paths["dem"]), {}, None)
+    except InputError as err:
+        print(f"sightaudit: error: {err}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("sightaudit: interrupted; no output was written", file=sys.stderr)
+        return 130
+    except Exception as err:  # a bug, not bad input
+        if getattr(args, "verbose", False):
+            raise
+        print(f"sightaudit: internal error after {time.perf_counter() - start:.1f} s: "
+              f"{type(err).__name__}: {' '.join(str(err).split())[:300]} (run with --verbose for details; "
+              f"please report it)", file=sys.stderr)
+        return 1
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,144 @@
+"""Run settings: defaults, the TOML config file, and command-line overrides.
+
+Settings are grouped in sections (``[roads]``, ``[ground]``, ``[profile]`` ...)
+and addressed as ``"section.key"``. Every key has a default and a one-line
+description; a config file may set any subset. An unknown section or key stops
+the run (exit code 2) naming the nearest valid key, so a typo never passes
+silently. Lengths are metres, speeds km/h, grades percent, unless the key's name
+says otherwise.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from pathlib import Path
+from typing import Any
+
+from .errors import InputError
+
+# section -> key -> (default, description). The description is what
+# ``sightaudit init`` writes above the key in the example config.
+SPEC: dict[str, dict[str, tuple[Any, str]]] = {
+    "roads": {
+        "id_column": ("road_id", "column holding each road's identifier (kept as text)"),
+        "speed_column": ("speed_kmh", "column holding the speed each road is judged at"),
+        "aadt_column": ("aadt", "column holding annual average daily traffic (vehicles/day)"),
+        "class_column": ("road_class", "column holding the road class (for summaries and default speeds)"),
+        "name_column": ("name", "column holding the road's name (optional)"),
+        "layer": ("", "GeoPackage layer with the centrelines; empty = the only layer, or 'roads'"),
+        "wkt_column": ("wkt", "CSV only: column with the centreline as WKT"),
+        "crs": ("", "CRS of the roads file when it has none (CSV), e.g. 'EPSG:32633'"),
+        "join_tolerance_m": (0.5, "largest gap between parts of a multi-part road that is still joined (m)"),
+    },
+    "ground": {
+        "layer": ("", "GeoPackage layer with ground points; empty = the only layer"),
+        "crs": ("", "CRS of ground points or DEM when the file has none; empty = same as roads"),
+        "elevation_unit": ("m", "unit of ground elevations: 'm', 'ft' (international foot) or 'us_ft' (US survey foot)"),
+        "z_column": ("z", "column holding ground elevation in a points file"),
+        "max_offset_m": (15.0, "ground points farther than this from their road's centreline are dropped (m)"),
+        "band": (1, "DEM band to read"),
+    },
+    "profile": {
+        "step_m": (5.0, "distance between profile stations along the road (m)"),
+        "max_gap_m": (20.0, "ground gaps longer than this are left missing, shorter ones are interpolated and marked (m)"),
+    },
+}
+
+
+def _nearest_key(name: str, section: str | None = None) -> str:
+    if section is None:
+        choices = list(SPEC)
+    else:
+        choices = [f"{section}.{k}" for k in SPEC[section]]
+        name = f"{section}.{name}"
+    everything = [f"{s}.{k}" for s in SPEC for k in SPEC[s]] + list(SPEC)
+    best = difflib.get_close_matches(name, choices, n=1, cutoff=0.0) or difflib.get_close_matches(
+        name, everything, n=1, cutoff=0.0
+    )
+    return best[0] if best else "?"
+
+
+def _coerce(key: str, value: Any, default: Any, source: str) -> Any:
+    """Check a value against the type of its default."""
+    if isinstance(default, bool):
+        if isinstance(value, bool):
+            return value
+    elif isinstance(default, float):
+        if isinstance(value, (int, float)) and not isinstance(value, bool):
+            return float(value)
+    elif isinstance(default, int):
+        if isinstance(value, int) and not isinstance(value, bool):
+            return value
+    elif isinstance(default, str):
+        if isinstance(value, str):
+            return value
+    elif isinstance(default, list):
+        if isinstance(value, list):
+            return list(value)
+    elif isinstance(default, dict):
+        if isinstance(value, dict):
+            return dict(value)
+    raise InputError(
+        f"{source}: {key} = {value!r} should be {type(default).__name__} "
+        f"(like {default!r}); fix the value"
+    )
+
+
+class Config:
+    """Settings as used by one run. ``cfg["profile.step_m"]`` reads a value."""
+
+    def __init__(self, values: dict[str, dict[str, Any]] | None = None, source: str = "defaults"):
+        self._values = {s: {k: v[0] for k, v in keys.items()} for s, keys in SPEC.items()}
+        self.source = source
+        if values:
+            self.update(values, source)
+
+    def update(self, values: dict[str, Any], source: str) -> None:
+        for section, keys in values.items():
+            if section not in SPEC:
+                raise InputError(
+                    f"{source}: unknown section [{section}]; did you mean [{_nearest_key(section)}]?"
+                )
+            if not isinstance(keys, dict):
+                raise InputError(f"{source}: [{section}] must be a table of keys")
+            for key, value in keys.items():
+                if key not in SPEC[section]:
+                    raise InputError(
+                        f"{source}: unknown key {section}.{key}; did you mean {_nearest_key(key, section)}?"
+                    )
+                default = SPEC[section][key][0]
+                self._values[section][key] = _coerce(f"{section}.{key}", value, default, source)
+
+    def set(self, dotted: str, value: Any, source: str = "command line") -> None:
+        section, _, key = dotted.partition(".")
+        self.update({section: {key: value}}, source)
+
+    def __getitem__(self, dotted: str) -> Any:
+        section, _, key = dotted.partition(".")
+        try:
+            return self._values[section][key]
+        except KeyError:
+            raise KeyError(f"no setting {dotted!r}") from None
+
+    def as_dict(self) -> dict[str, dict[str, Any]]:
+        return {s: dict(k) for s, k in self._values.items()}
+
+
+def load_config(path: str | Path | None = None, overrides: dict[str, Any] | None = None) -> Config:
+    """Defaults, then the TOML file (if any), then ``overrides`` (``{"section.key": value}``)."""
+    cfg = Config()
+    if path:
+        p = Path(path)
+        if not p.is_file():
+            raise InputError(f"{p}: config file not found; check the path given to --config")
+        try:
+            data = tomllib.loads(p.read_text(encoding="utf-8"))
+        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+            raise InputError(f"{p}: not a valid TOML file ({exc}); fix the syntax") from None
+        cfg.update(data, str(p))
+        cfg.source = str(p)
+    for dotted, value in (overrides or {}).items():
+        if value is not None:
+            cfg.set(dotted, value)
+    return cfg

@@ -1,0 +1,507 @@
+"""Read road centrelines and ground data, and put every road in a metric CRS.
+
+Roads come from a GeoPackage (layer selectable), GeoParquet, any other vector
+file GDAL reads, or a CSV with a WKT column and a stated CRS. Ground comes from
+a DEM GeoTIFF or from ground points (``road_id, x, y, z`` or
+``road_id, chainage_m, z``).
+
+Working CRS (all lengths are measured in it, in metres):
+
+- projected CRS in metres: used as it is;
+- projected CRS in another linear unit (international or US survey feet): the
+  same projection with metre axes, so pyproj converts the unit (no typed-in
+  factor);
+- geographic CRS (lon/lat): the UTM zone of each road's centroid on the file's
+  own geodetic datum, so no datum shift (and no "ballpark" transform) is
+  involved. UTM keeps grid distances within about 0.1 % of the ellipsoid
+  (Snyder 1987, *Map Projections: A Working Manual*, USGS PP 1395, ch. 8).
+
+Functions here only read and check; they do no profile numerics.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyproj
+import shapely
+from pyproj.crs import ProjectedCRS
+from pyproj.crs.coordinate_operation import UTMConversion
+
+from .config import Config
+from .errors import InputError
+
+VECTOR_SUFFIXES = {".gpkg", ".shp", ".geojson", ".json", ".fgb", ".gml", ".kml", ".sqlite"}
+DEM_SUFFIXES = {".tif", ".tiff", ".vrt", ".img", ".asc"}
+
+
+# --------------------------------------------------------------------------- files
+def check_file(path: str | Path, what: str) -> Path:
+    """The path exists, is a file and is not empty, else :class:`InputError`."""
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"{p}: {what} file not found; check the path")
+    if p.is_dir():
+        raise InputError(f"{p}: is a folder, expected a {what} file")
+    if p.stat().st_size == 0:
+        raise InputError(f"{p}: {what} file is empty; export the data again")
+    return p
+
+
+def file_sha256(path: str | Path) -> str:
+    import hashlib
+
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def parse_crs(text: str, where: str) -> pyproj.CRS:
+    try:
+        return pyproj.CRS.from_user_input(text)
+    except pyproj.exceptions.CRSError:
+        raise InputError(
+            f"{where}: unknown CRS {text!r}; give an EPSG code such as 'EPSG:32633' or a WKT string"
+        ) from None
+
+
+def _vector_layer(path: Path, layer: str, what: str, setting: str) -> str | None:
+    import pyogrio
+
+    try:
+        layers = [row[0] for row in pyogrio.list_layers(path)]
+    except Exception as exc:  # GDAL raises its own error types
+        raise InputError(f"{path}: cannot be read as a vector file ({_short(exc)}); check the format") from None
+    if layer:
+        if layer not in layers:
+            raise InputError(f"{path}: no layer {layer!r} (layers: {', '.join(layers)}); fix {setting}")
+        return layer
+    if len(layers) == 1:
+        return layers[0]
+    if what in layers:
+        return what
+    raise InputError(f"{path}: has layers {', '.join(layers)}; choose one with {setting}")
+
+
+def _short(exc: BaseException) -> str:
+    return " ".join(str(exc).split())[:160]
+
+
+def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "", wkt_column: str = "",
+               crs_text: str = "", crs_setting: str = "") -> tuple[pd.DataFrame, pyproj.CRS | None]:
+    """Read a vector or CSV file as a DataFrame with a shapely ``geometry`` column (or none).
+
+    Returns the frame and its CRS (``None`` where neither the file nor the
+    config gives one).
+    """
+    import geopandas as gpd
+
+    suffix = path.suffix.lower()
+    crs = parse_crs(crs_text, crs_setting) if crs_text else None
+    if suffix == ".csv" or suffix == ".txt":
+        try:
+            frame = pd.read_csv(path, dtype=str, keep_default_na=False, na_values=[""])
+        except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+            raise InputError(f"{path}: not a readable CSV file ({_short(exc)}); save it as UTF-8 CSV") from None
+        except pd.errors.EmptyDataError:
+            raise InputError(f"{path}: {what} file has no rows; export the data again") from None
+        frame.columns = [str(c).strip() for c in frame.columns]
+        if wkt_column and wkt_column in frame.columns:
+            geoms = shapely.from_wkt(frame[wkt_column].to_numpy(dtype=object), on_invalid="ignore")
+            bad = np.flatnonzero(pd.isna(geoms) & frame[wkt_column].notna().to_numpy())
+            if len(bad):
+                raise InputError(
+                    f"{path}: row {bad[0] + 2}, column {wkt_column}: not valid WKT; fix or remove the row"
+                )
+            frame = frame.drop(columns=[wkt_column])
+            frame["geometry"] = geoms
+        return frame, crs
+    if suffix == ".parquet":
+        try:
+            gdf = gpd.read_parquet(path)
+        except Exception as exc:
+            try:
+                return pd.read_parquet(path), crs
+            except Exception:
+                raise InputError(f"{path}: not a readable Parquet file ({_short(exc)})") from None
+    else:
+        lyr = _vector_layer(path, layer, what, layer_setting)
+        try:
+            gdf = gpd.read_file(path, layer=lyr, engine="pyogrio")
+        except Exception as exc:
+            raise InputError(f"{path}: cannot be read ({_short(exc)}); check the format") from None
+    frame = pd.DataFrame(gdf.drop(columns=gdf.geometry.name))
+    frame["geometry"] = gdf.geometry.to_numpy()
+    if crs is None and gdf.crs is not None:
+        crs = pyproj.CRS.from_user_input(gdf.crs)
+    return frame, crs
+
+
+def numeric_column(frame: pd.DataFrame, column: str, path: Path) -> np.ndarray:
+    """A column as float; a non-numeric entry stops the run naming its row."""
+    raw = frame[column]
+    values = pd.to_numeric(raw, errors="coerce")
+    bad = np.flatnonzero(values.isna().to_numpy() & raw.notna().to_numpy())
+    if len(bad):
+        row = bad[0]
+        raise InputError(
+            f"{path}: row {row + 2}, column {column}: {raw.iloc[row]!r} is not a number; fix or remove the row"
+        )
+    return values.to_numpy(dtype=float)
+
+
+def id_strings(values: pd.Series) -> np.ndarray:
+    """Identifiers as text; 12.0 read from a numeric column becomes '12'."""
+    if pd.api.types.is_float_dtype(values):
+        finite = values.dropna()
+        if len(finite) and np.all(np.mod(finite, 1) == 0):
+            return np.array([None if pd.isna(v) else str(int(v)) for v in values], dtype=object)
+    return np.array([None if pd.isna(v) else str(v).strip() for v in values], dtype=object)
+
+
+# ------------------------------------------------------------------------ CRS
+def working_crs_key(crs: pyproj.CRS, lon: float | None = None, lat: float | None = None) -> str:
+    """A key naming the metric working CRS for data in ``crs`` at ``lon, lat``."""
+    if crs.is_geographic:
+        zone = int(np.clip(np.floor((lon + 180.0) / 6.0) + 1, 1, 60))
+        return f"utm{zone}{'S' if lat < 0 else 'N'}"
+    return "source"
+
+
+def working_crs(crs: pyproj.CRS, key: str) -> pyproj.CRS:
+    """The metric CRS for ``key`` (see :func:`working_crs_key`)."""
+    if key.startswith("utm"):
+        zone, south = int(key[3:-1]), key.endswith("S")
+        return ProjectedCRS(
+            conversion=UTMConversion(zone, 'S' if south else 'N'),
+            geodetic_crs=crs.geodetic_crs,
+            name=f"UTM zone {zone}{'S' if south else 'N'} on {crs.geodetic_crs.name}",
+        )
+    unit = crs.axis_info[0].unit_conversion_factor if crs.axis_info else 1.0
+    if crs.is_projected and abs(unit - 1.0) > 1e-12:
+        spec = crs.to_json_dict()
+        for axis in spec["coordinate_system"]["axis"]:
+            axis["unit"] = "metre"
+        spec["name"] = f"{spec.get('name', 'projected CRS')} (metre axes)"
+        spec.pop("id", None)
+        return pyproj.CRS.from_json_dict(spec)
+    return crs
+
+
+def transformer(src: pyproj.CRS, dst: pyproj.CRS) -> pyproj.Transformer:
+    return pyproj.Transformer.from_crs(src, dst, always_xy=True)
+
+
+def is_ballpark(tr: pyproj.Transformer) -> bool:
+    """True where PROJ fell back to a transform without datum shift grids."""
+    desc = (tr.description or "").lower()
+    return "ballpark" in desc
+
+
+# ---------------------------------------------------------------------- roads
+@dataclass
+class Roads:
+    """The road network after ingest.
+
+    ``table`` has one row per input road, in input order, with
+    ``road_id, name, speed_raw, aadt, road_class, geometry_src, geometry``
+    (working CRS, metres), ``work_key``, ``length_m`` and ``skip_reason``
+    (``None`` where the road can be processed).
+    """
+
+    path: Path
+    table: pd.DataFrame
+    source_crs: pyproj.CRS
+    work_crs: dict[str, pyproj.CRS] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+
+    def to_source(self, key: str) -> pyproj.Transformer:
+        return transformer(self.work_crs[key], self.source_crs)
+
+
+def merge_parts(geom, tolerance_m: float) -> tuple[object | None, str | None]:
+    """One LineString from a (Multi)LineString, parts joined end to end in order.
+
+    Returns ``(line, None)`` or ``(None, reason)``. A part may be digitised in
+    either direction; the first part fixes the road's direction. Gaps up to
+    ``tolerance_m`` between consecutive parts are closed.
+    """
+    if geom is None or shapely.is_empty(geom):
+        return None, "no geometry"
+    kind = shapely.get_type_id(geom)
+    if kind == 1:  # LineString
+        return shapely.force_2d(geom), None
+    if kind != 5:  # not MultiLineString
+        return None, f"geometry is a {geom.geom_type}, not a line"
+    parts = [shapely.get_coordinates(p) for p in shapely.get_parts(geom) if not shapely.is_empty(p)]
+    if not parts:
+        return None, "no geometry"
+    tol = tolerance_m
+    chain = parts[0]
+    for i, nxt in enumerate(parts[1:], start=1):
+        if i == 1:
+            # the first part may also be reversed to meet the second
+            ends = [(chain[-1], nxt[0], False, False), (chain[-1], nxt[-1], False, True),
+                    (chain[0], nxt[0], True, False), (chain[0], nxt[-1], True, True)]
+        else:
+            ends = [(chain[-1], nxt[0], False, False), (chain[-1], nxt[-1], False, True)]
+        gap, rev_chain, rev_next = min((float(np.hypot(*(a - b))), rc, rn) for a, b, rc, rn in ends)
+        if gap > tol:
+            merged = shapely.line_merge(geom)
+            if shapely.get_type_id(merged) == 1:
+                line = shapely.force_2d(merged)
+                first = parts[0][0]
+                start = shapely.get_coordinates(line)[0]
+                if np.hypot(*(start - first)) > np.hypot(*(shapely.get_coordinates(line)[-1] - first)):
+                    line = shapely.reverse(line)
+                return line, None
+            return None, (
+                f"parts {i} and {i + 1} of the multi-part line do not meet "
+                f"(gap {gap:.1f} m); join them in the source data"
+            )
+        if rev_chain:
+            chain = chain[::-1]
+        seg = nxt[::-1] if rev_next else nxt
+        chain = np.vstack([chain, seg[1:] if gap == 0 else seg])
+    return shapely.linestrings(chain[:, :2]), None
+
+
+def read_roads(path: str | Path, cfg: Config) -> Roads:
+    """Read the centrelines, merge multi-part lines, project to a metric CRS."""
+    path = check_file(path, "roads")
+    frame, crs = read_table(
+        path, what="roads", layer=cfg["roads.layer"], layer_setting="roads.layer (--roads-layer)",
+        wkt_column=cfg["roads.wkt_column"], crs_text=cfg["roads.crs"], crs_setting="roads.crs (--roads-crs)",
+    )
+    id_col = cfg["roads.id_column"]
+    if len(frame) == 0:
+        raise InputError(f"{path}: no roads in the file; export the centrelines again")
+    if "geometry" not in frame.columns:
+        raise InputError(
+            f"{path}: no geometry; a CSV needs a WKT column named {cfg['roads.wkt_column']!r} "
+            f"(set roads.wkt_column)"
+        )
+    if id_col not in frame.columns:
+        raise InputError(
+            f"{path}: no column {id_col!r} for the road identifier "
+            f"(columns: {', '.join(map(str, frame.columns[:12]))}); set roads.id_column or --id-column"
+        )
+    if crs is None:
+        raise InputError(f"{path}: no CRS in the file; state it with roads.crs or --roads-crs (e.g. EPSG:32633)")
+    if not (crs.is_geographic or crs.is_projected):
+        raise InputError(f"{path}: CRS {crs.name!r} is neither geographic nor projected; reproject the roads")
+
+    ids = id_strings(frame[id_col])
+    missing = [i for i, v in enumerate(ids) if v is None or v == ""]
+    if missing:
+        raise InputError(f"{path}: row {missing[0] + 2}, column {id_col}: empty road identifier; fill it in")
+
+    def optional_numeric(column: str) -> np.ndarray:
+        if column and column in frame.columns:
+            return numeric_column(frame, column, path)
+        return np.full(len(frame), np.nan)
+
+    def optional_text(column: str) -> np.ndarray:
+        if column and column in frame.columns:
+            return np.array([None if pd.isna(v) else str(v) for v in frame[column]], dtype=object)
+        return np.full(len(frame), None, dtype=object)
+
+    table = pd.DataFrame({
+        "road_id": ids,
+        "name": optional_text(cfg["roads.name_column"]),
+        "speed_raw": optional_numeric(cfg["roads.speed_column"]),
+        "aadt": optional_numeric(cfg["roads.aadt_column"]),
+        "road_class": optional_text(cfg["roads.class_column"]),
+    })
+    raw = frame["geometry"].to_numpy(dtype=object)
+    present = np.array([g is not None and not shapely.is_empty(g) for g in raw])
+
+    # each road's working CRS: one for projected data, the UTM zone of its centroid for lon/lat
+    keys = np.full(len(table), "source", dtype=object)
+    if crs.is_geographic and present.any():
+        cent = shapely.centroid(raw[present])
+        keys[present] = [working_crs_key(crs, a, b) for a, b in zip(shapely.get_x(cent), shapely.get_y(cent))]
+    roads = Roads(path=path, table=table, source_crs=crs)
+    lines = np.full(len(table), None, dtype=object)
+    src_lines = np.full(len(table), None, dtype=object)
+    reasons = np.full(len(table), None, dtype=object)
+    reasons[~present] = "no geometry"
+    tol = cfg["roads.join_tolerance_m"]
+    for key in sorted(set(keys[present])) if present.any() else []:
+        wcrs = working_crs(crs, key)
+        roads.work_crs[key] = wcrs
+        sel = np.flatnonzero((keys == key) & present)
+        fwd, back = transformer(crs, wcrs), transformer(wcrs, crs)
+        work = _apply(raw[sel], fwd, wcrs is crs)
+        for i, geom in zip(sel, work):
+            line, reason = merge_parts(geom, tol)  # metres in the working CRS
+            lines[i], reasons[i] = line, reason
+        merged = np.flatnonzero(np.array([lines[i] is not None for i in sel]))
+        if len(merged):
+            src_lines[sel[merged]] = _apply(lines[sel[merged]], back, wcrs is crs)
+    table["geometry_src"] = src_lines
+    table["geometry"] = lines
+    table["work_key"] = keys
+    have = np.array([g is not None for g in lines])
+    length = np.full(len(table), np.nan)
+    length[have] = shapely.length(lines[have])
+    table["length_m"] = length
+    reasons[have & ~(length > 0)] = "zero-length line"
+    table["skip_reason"] = pd.Series(reasons, dtype=object)
+    if crs.is_geographic:
+        roads.notes.append(
+            f"roads in geographic CRS {crs.name!r} measured in "
+            + ", ".join(roads.work_crs[k].name for k in sorted(roads.work_crs))
+        )
+    elif "source" in roads.work_crs and roads.work_crs["source"] is not crs:
+        roads.notes.append(f"roads CRS {crs.name!r} has non-metre axes; lengths measured in its metre twin")
+    return roads
+
+
+def _apply(geoms: np.ndarray, tr: pyproj.Transformer, identity: bool) -> np.ndarray:
+    """Transform an array of shapely geometries (vectorised over all their vertices)."""
+    if identity:
+        return geoms
+    return shapely.transform(geoms, lambda xy: np.column_stack(tr.transform(xy[:, 0], xy[:, 1])))
+
+
+# --------------------------------------------------------------------- ground
+@dataclass
+class DemGround:
+    """A DEM raster; windows are read per road (never the whole raster)."""
+
+    path: Path
+    crs: pyproj.CRS
+    band: int
+    metres_per_unit: float
+    nodata: float | None
+    bounds: tuple[float, float, float, float]
+    kind: str = "dem"
+
+    def describe(self) -> dict:
+        return {"kind": "dem", "crs": self.crs.to_string(), "band": self.band, "nodata": self.nodata,
+                "bounds": list(self.bounds)}
+
+
+@dataclass
+class PointGround:
+    """Ground points grouped by road: ``x, y`` (in ``crs``) or ``chainage_m``, and ``z_m``."""
+
+    path: Path
+    crs: pyproj.CRS | None
+    by_road: dict[str, pd.DataFrame]
+    rows: int
+    mode: str  # "xy" or "chainage"
+    kind: str = "points"
+
+    def describe(self) -> dict:
+        return {"kind": "points", "mode": self.mode, "rows": self.rows,
+                "crs": self.crs.to_string() if self.crs is not None else None}
+
+
+def open_ground(path: str | Path, cfg: Config, roads: Roads) -> DemGround | PointGround:
+    """Open the ground model: a DEM raster or a file of ground points."""
+    from .units import metres_per
+
+    path = check_file(path, "ground")
+    factor = metres_per(cfg["ground.elevation_unit"])
+    if path.suffix.lower() in DEM_SUFFIXES:
+        return _open_dem(path, cfg, roads, factor)
+    return _read_points(path, cfg, roads, factor)
+
+
+def _open_dem(path: Path, cfg: Config, roads: Roads, factor: float) -> DemGround:
+    import rasterio
+
+    try:
+        with rasterio.open(path) as src:
+            band = cfg["ground.band"]
+            if not 1 <= band <= src.count:
+                raise InputError(f"{path}: has {src.count} band(s), ground.band = {band}; fix ground.band")
+            crs = src.crs
+            if crs is None:
+                if not cfg["ground.crs"]:
+                    raise InputError(f"{path}: DEM has no CRS; state it with ground.crs or --ground-crs")
+                crs = parse_crs(cfg["ground.crs"], "ground.crs")
+            else:
+                crs = pyproj.CRS.from_user_input(crs.to_wkt())
+            nodata = src.nodatavals[band - 1]
+            return DemGround(path=path, crs=crs, band=band, metres_per_unit=factor,
+                             nodata=None if nodata is None else float(nodata), bounds=tuple(src.bounds))
+    except rasterio.errors.RasterioIOError as exc:
+        raise InputError(f"{path}: cannot be read as a raster ({_short(exc)}); check the format") from None
+
+
+def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 2):
+    """The DEM cells around points ``x, y`` (DEM CRS): ``(array_m, affine)``.
+
+    Nodata cells become NaN; elevations are converted to metres. Returns
+    ``(None, None)`` when the points lie wholly outside the raster.
+    """
+    import rasterio
+    from rasterio.windows import Window
+
+    from .profile import map_to_pixel
+
+    with rasterio.open(dem.path) as src:
+        cols, rows = map_to_pixel(src.transform, x, y)
+        finite = np.isfinite(cols) & np.isfinite(rows)
+        if not finite.any():
+            return None, None
+        c0 = int(np.floor(np.nanmin(cols[finite]))) - margin
+        c1 = int(np.ceil(np.nanmax(cols[finite]))) + margin
+        r0 = int(np.floor(np.nanmin(rows[finite]))) - margin
+        r1 = int(np.ceil(np.nanmax(rows[finite]))) + margin
+        c0, r0 = max(c0, 0), max(r0, 0)
+        c1, r1 = min(c1, src.width), min(r1, src.height)
+        if c1 <= c0 or r1 <= r0:
+            return None, None
+        win = Window(c0, r0, c1 - c0, r1 - r0)
+        data = src.read(dem.band, window=win, masked=True)
+        arr = np.asarray(data.filled(np.nan) if np.ma.isMaskedArray(data) else data, dtype=float)
+        if dem.nodata is not None and np.isfinite(dem.nodata):
+            arr[arr == dem.nodata] = np.nan
+        return arr * dem.metres_per_unit, src.window_transform(win)
+
+
+def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointGround:
+    frame, crs = read_table(path, what="ground", layer=cfg["ground.layer"],
+                            layer_setting="ground.layer (--ground-layer)",
+                            crs_text=cfg["ground.crs"], crs_setting="ground.crs (--ground-crs)")
+    if len(frame) == 0:
+        raise InputError(f"{path}: no ground points in the file; export them again")
+    id_col = cfg["roads.id_column"]
+    z_col = cfg["ground.z_column"]
+    for col in (id_col, z_col):
+        if col not in frame.columns:
+            raise InputError(
+                f"{path}: no column {col!r} (columns: {', '.join(map(str, frame.columns[:12]))}); "
+                f"ground points need {id_col}, {z_col} and either x, y or chainage_m"
+            )
+    out = pd.DataFrame({"road_id": id_strings(frame[id_col]), "z_m": numeric_column(frame, z_col, path) * factor})
+    geom = frame["geometry"] if "geometry" in frame.columns else None
+    if "chainage_m" in frame.columns:
+        mode = "chainage"
+        out["chainage_m"] = numeric_column(frame, "chainage_m", path)
+    elif {"x", "y"} <= set(frame.columns):
+        mode = "xy"
+        out["x"] = numeric_column(frame, "x", path)
+        out["y"] = numeric_column(frame, "y", path)
+    elif geom is not None:
+        mode = "xy"
+        out["x"] = shapely.get_x(geom.to_numpy())
+        out["y"] = shapely.get_y(geom.to_numpy())
+    else:
+        raise InputError(f"{path}: ground points need columns x, y (or a point geometry) or chainage_m")
+    if mode == "xy":
+        if crs is None:
+            crs = roads.source_crs
+            roads.notes.append(f"{path.name}: no CRS stated for ground points; taken as the roads' CRS")
+    by_road = {k: g.drop(columns="road_id").reset_index(drop=True) for k, g in out.groupby("road_id", sort=False)}
+    return PointGround(path=path, crs=crs, by_road=by_road, rows=len(out), mode=mode)
+

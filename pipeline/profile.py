@@ -1,0 +1,173 @@
+"""Chainage, stations and ground elevation along a road (the long profile).
+
+All functions are plain numpy/shapely computations on one road; reading files
+is done in :mod:`pipeline.ingest`.
+
+- Chainage is measured in metres along the centreline from its first vertex
+  in the road's metric working CRS (shapely's planar length).
+- Stations lie at a uniform step (default 5 m) from chainage 0.
+- DEM elevations are interpolated bilinearly between the four surrounding cell
+  centres (the standard bilinear form, e.g. Press et al., *Numerical Recipes*,
+  3rd ed., section 3.6). A station touching a nodata cell stays missing.
+- Ground points are located on the centreline (shapely 2 ``line_locate_point``)
+  and reduced to stations by a local straight-line fit within each station's
+  bin of half a step either side, which is unbiased on a constant grade.
+- Gaps in the ground data: a station between data points less than
+  ``max_gap_m`` apart is interpolated and marked ``filled``; across a longer gap
+  it stays missing (NaN, ``missing``). Nothing is filled silently.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import shapely
+
+# ground_flag values, in profiles.parquet as text
+MEASURED, FILLED, MISSING = 0, 1, 2
+FLAG_NAMES = np.array(["measured", "filled", "missing"], dtype=object)
+
+
+def station_chainages(length_m: float, step_m: float) -> np.ndarray:
+    """Chainages ``0, step, 2 step, ...`` up to ``length_m`` (m)."""
+    if not np.isfinite(length_m) or length_m <= 0:
+        raise ValueError(f"road length must be positive, got {length_m!r} m")
+    if not np.isfinite(step_m) or step_m <= 0:
+        raise ValueError(f"profile step must be positive, got {step_m!r} m")
+    n = int(np.floor(length_m / step_m + 1e-9)) + 1
+    return np.arange(n, dtype=float) * step_m
+
+
+def points_along(line, chainage_m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Coordinates of the points at ``chainage_m`` along ``line`` (working CRS)."""
+    pts = shapely.line_interpolate_point(line, np.asarray(chainage_m, dtype=float))
+    xy = shapely.get_coordinates(pts)
+    return xy[:, 0], xy[:, 1]
+
+
+def map_to_pixel(affine, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Fractional (column, row) of map coordinates through the inverse of a raster's affine."""
+    inv = ~affine
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    return inv.a * x + inv.b * y + inv.c, inv.d * x + inv.e * y + inv.f
+
+
+def bilinear(array: np.ndarray, affine, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Bilinear interpolation of a raster at map coordinates ``x, y``.
+
+    ``array`` is (rows, cols) with NaN for nodata, ``affine`` the raster's
+    transform (rasterio/affine convention: pixel corner at (0, 0)). Points
+    outside the raster, or whose four neighbouring cells include nodata, give
+    NaN. Between the outermost cell centres and the raster edge the edge cells
+    are used (constant extrapolation over half a cell).
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    rows, cols = array.shape
+    col_f, row_f = map_to_pixel(affine, x, y)
+    inside = (col_f >= 0) & (col_f <= cols) & (row_f >= 0) & (row_f <= rows)
+    # continuous index of cell centres
+    c = np.clip(col_f - 0.5, 0.0, cols - 1.0)
+    r = np.clip(row_f - 0.5, 0.0, rows - 1.0)
+    c0 = np.clip(np.floor(c).astype(np.int64), 0, max(cols - 2, 0))
+    r0 = np.clip(np.floor(r).astype(np.int64), 0, max(rows - 2, 0))
+    c1 = np.minimum(c0 + 1, cols - 1)
+    r1 = np.minimum(r0 + 1, rows - 1)
+    fc = c - c0
+    fr = r - r0
+    z00, z01 = array[r0, c0], array[r0, c1]
+    z10, z11 = array[r1, c0], array[r1, c1]
+    w00, w01 = (1 - fr) * (1 - fc), (1 - fr) * fc
+    w10, w11 = fr * (1 - fc), fr * fc
+    # a neighbour with zero weight must not spread its nodata
+    terms = np.stack([w00 * np.where(w00 > 0, z00, 0.0), w01 * np.where(w01 > 0, z01, 0.0),
+                      w10 * np.where(w10 > 0, z10, 0.0), w11 * np.where(w11 > 0, z11, 0.0)])
+    nodata = ((w00 > 0) & np.isnan(z00)) | ((w01 > 0) & np.isnan(z01)) | \
+             ((w10 > 0) & np.isnan(z10)) | ((w11 > 0) & np.isnan(z11))
+    z = terms.sum(axis=0)
+    z[nodata | ~inside] = np.nan
+    return z
+
+
+def locate_points(line, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Chainage (m) of each point's nearest point on ``line`` and its signed offset (m, + = left)."""
+    pts = shapely.points(np.asarray(x, dtype=float), np.asarray(y, dtype=float))
+    chain = shapely.line_locate_point(line, pts)
+    foot = shapely.get_coordinates(shapely.line_interpolate_point(line, chain))
+    length = shapely.length(line)
+    ahead = shapely.get_coordinates(shapely.line_interpolate_point(line, np.minimum(chain + 0.5, length)))
+    behind = shapely.get_coordinates(shapely.line_interpolate_point(line, np.maximum(chain - 0.5, 0.0)))
+    tx, ty = ahead[:, 0] - behind[:, 0], ahead[:, 1] - behind[:, 1]
+    dx, dy = np.asarray(x) - foot[:, 0], np.asarray(y) - foot[:, 1]
+    dist = np.hypot(dx, dy)
+    side = np.sign(tx * dy - ty * dx)
+    side[side == 0] = 1.0
+    return chain, dist * side
+
+
+def regularise(chain: np.ndarray, z: np.ndarray, stations: np.ndarray, step_m: float,
+               max_gap_m: float) -> tuple[np.ndarray, np.ndarray]:
+    """Ground elevation at ``stations`` from scattered ``(chain, z)`` samples.
+
+    Returns ``(z_station, flag)`` with flag MEASURED, FILLED or MISSING (see
+    module notes). Samples with NaN elevation are ignored (they are the gaps).
+    """
+    chain = np.asarray(chain, dtype=float)
+    z = np.asarray(z, dtype=float)
+    keep = np.isfinite(chain) & np.isfinite(z)
+    chain, z = chain[keep], z[keep]
+    n_st = len(stations)
+    out = np.full(n_st, np.nan)
+    flag = np.full(n_st, MISSING, dtype=np.int8)
+    if len(chain) == 0:
+        return out, flag
+    order = np.argsort(chain, kind="stable")
+    chain, z = chain[order], z[order]
+
+    # local straight-line fit within each station's bin
+    half = 0.5 * step_m
+    idx = np.floor((chain - stations[0] + half) / step_m).astype(np.int64)
+    inbin = (idx >= 0) & (idx < n_st)
+    bi, u, zz = idx[inbin], chain[inbin] - stations[idx[inbin]], z[inbin]
+    cnt = np.bincount(bi, minlength=n_st).astype(float)
+    su = np.bincount(bi, u, n_st)
+    sz = np.bincount(bi, zz, n_st)
+    suu = np.bincount(bi, u * u, n_st)
+    suz = np.bincount(bi, u * zz, n_st)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ubar, zbar = su / cnt, sz / cnt
+        sxx = suu - cnt * ubar**2
+        sxy = suz - cnt * ubar * zbar
+        slope = np.where(sxx > 1e-9 * step_m**2, sxy / sxx, 0.0)
+        fitted = zbar - slope * ubar
+    has = cnt > 0
+
+    # interpolation between neighbouring samples, and the width of the bracketing gap
+    interp = np.interp(stations, chain, z)
+    right = np.searchsorted(chain, stations, side="left")
+    left = right - 1
+    width = np.full(n_st, np.inf)
+    both = (left >= 0) & (right < len(chain))
+    width[both] = chain[right[both]] - chain[left[both]]
+    exact = (right < len(chain)) & (chain[np.minimum(right, len(chain) - 1)] == stations)
+    width[exact] = 0.0
+    near_end = ((stations < chain[0]) & (chain[0] - stations <= half)) | \
+               ((stations > chain[-1]) & (stations - chain[-1] <= half))
+    width[near_end] = 0.0
+
+    spacing = np.median(np.diff(chain)) if len(chain) > 1 else step_m
+    normal = max(1.5 * spacing, step_m)  # a bracket wider than usual is a gap, however short
+    measured = has | (width <= normal)
+    filled = ~measured & (width <= max_gap_m)
+    out[measured] = np.where(has[measured], fitted[measured], interp[measured])
+    flag[measured] = MEASURED
+    out[filled] = interp[filled]
+    flag[filled] = FILLED
+    return out, flag
+
+
+def run_lengths(mask: np.ndarray) -> list[tuple[int, int]]:
+    """``(start, stop)`` index pairs of the runs of True in ``mask``."""
+    m = np.concatenate([[False], np.asarray(mask, dtype=bool), [False]])
+    d = np.diff(m.astype(np.int8))
+    return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1)))
