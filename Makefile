@@ -26,5 +26,8 @@ demo: $(VENV)/.installed
 test: $(VENV)/.installed-test
 	$(BIN)/python -m pytest -q
 
+bench-accuracy: $(VENV)/.installed
+	$(BIN)/python benchmarks/alignment_accuracy.py
+
 clean:
 	rm -rf out .pytest_cache .hypothesis

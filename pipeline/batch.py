@@ -50,6 +50,8 @@ class RoadOutcome:
     reason: str | None = None
     notes: list[tuple[str, float | None, float | None, str]] = field(default_factory=list)
     profile: pd.DataFrame | None = None
+    curves: pd.DataFrame | None = None
+    seconds: dict[str, float] = field(default_factory=dict)
 
     def skip(self, reason: str) -> "RoadOutcome":
         self.status, self.reason = "skipped", reason
@@ -146,7 +148,8 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
         step = cfg["profile.step_m"]
         for a, b in run_lengths(missing):
             out.notes.append(("ground data missing", float(stations[a]), float(stations[b - 1]),
-                              f"{(b - a) * step:g} m without ground data; not evaluated there"))
+                              f"{b - a} station(s), {(b - a) * step:g} m, without ground data; "
+                              f"not evaluated there"))
     if (flag == FILLED).any():
         for a, b in run_lengths(flag == FILLED):
             out.notes.append(("short ground gap interpolated", float(stations[a]), float(stations[b - 1]),
@@ -165,6 +168,38 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
     return out
 
 
+def road_alignment(out: RoadOutcome, cfg: Config) -> list:
+    """Fit the vertical alignment to a road's profile (the alignment stage); returns the
+    fitted stretches."""
+    from .alignment import fit_profile
+
+    prof = out.profile
+    stretches, curves, fitted, grade = fit_profile(prof["chainage_m"].to_numpy(), prof["ground_z_m"].to_numpy(),
+                                                   cfg["profile.step_m"], alignment_options(cfg))
+    prof["fitted_z_m"] = fitted
+    prof["grade_pct"] = grade * 100.0
+    curves.insert(0, "road_id", out.road_id)
+    out.curves = curves
+    return stretches
+
+
+def alignment_options(cfg: Config) -> dict:
+    return {k: cfg[f"alignment.{k}"] for k in ("min_tangent_m", "min_grade_change_pct", "split_gap_m",
+                                                "short_tangent_m", "bin_m", "noise_floor_m")}
+
+
+def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source) -> RoadOutcome:
+    """Every per-road stage for one road, timed stage by stage."""
+    t0 = time.perf_counter()
+    out = road_profile(row, sampler, cfg, to_source)
+    t1 = time.perf_counter()
+    out.seconds["profile"] = t1 - t0
+    if out.status == "evaluated":
+        road_alignment(out, cfg)
+        out.seconds["alignment"] = time.perf_counter() - t1
+    return out
+
+
 # ------------------------------------------------------------------ network run
 @dataclass
 class NetworkResult:
@@ -179,6 +214,15 @@ class NetworkResult:
         frames = [o.profile for o in self.outcomes if o.profile is not None]
         if not frames:
             return empty_profiles()
+        return pd.concat(frames, ignore_index=True)
+
+    @property
+    def curves(self) -> pd.DataFrame:
+        from .alignment import CURVE_COLUMNS
+
+        frames = [o.curves for o in self.outcomes if o.curves is not None and len(o.curves)]
+        if not frames:
+            return pd.DataFrame({c: [] for c in ["road_id"] + CURVE_COLUMNS})
         return pd.concat(frames, ignore_index=True)
 
     def road_table(self) -> pd.DataFrame:
@@ -220,17 +264,18 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
         tick()
     timings["ingest"] = time.perf_counter() - t0
 
-    t0 = time.perf_counter()
     sampler = GroundSampler(ground, roads, cfg)
     back = {key: (None if crs is roads.source_crs else transformer(crs, roads.source_crs))
             for key, crs in roads.work_crs.items()}
     outcomes: list[RoadOutcome] = []
     table = roads.table
-    with progress.stage("building profiles", total=len(table)) as tick:
+    with progress.stage("profiles and alignment", total=len(table)) as tick:
         for _, row in table.iterrows():
-            outcomes.append(road_profile(row, sampler, cfg, back.get(row["work_key"])))
+            outcomes.append(process_road(row, sampler, cfg, back.get(row["work_key"])))
             tick()
-    timings["profile"] = time.perf_counter() - t0
+    for o in outcomes:
+        for stage, secs in o.seconds.items():
+            timings[stage] = timings.get(stage, 0.0) + secs
 
     ground_info = ground.describe() | {"path": str(ground.path)}
     if isinstance(ground, PointGround):

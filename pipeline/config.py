@@ -43,6 +43,14 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "step_m": (5.0, "distance between profile stations along the road (m)"),
         "max_gap_m": (20.0, "ground gaps longer than this are left missing, shorter ones are interpolated and marked (m)"),
     },
+    "alignment": {
+        "min_tangent_m": (20.0, "shortest straight piece the segmentation may create; a PVI needs this much data each side (m)"),
+        "min_grade_change_pct": (0.5, "a PVI with a smaller change of grade is not kept as a vertical curve (%)"),
+        "split_gap_m": (150.0, "the profile is fitted in separate stretches across data gaps longer than this (m)"),
+        "short_tangent_m": (60.0, "two crests (or two sags) closer than this are flagged as broken-back (m)"),
+        "bin_m": (10.0, "the number and rough place of PVIs are found on means over bins this long (m)"),
+        "noise_floor_m": (0.002, "ground noise is taken as at least this when estimating it from the data (m)"),
+    },
 }
 
 

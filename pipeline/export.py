@@ -69,8 +69,24 @@ def write_profiles(path: Path, profiles: pd.DataFrame) -> None:
     profiles.to_parquet(path, index=False)
 
 
+def curves_for_csv(curves: pd.DataFrame) -> pd.DataFrame:
+    """Curve table rounded for reading: chainages and elevations to the millimetre, grades to
+    1e-4 %, K to 0.01."""
+    out = curves.copy()
+    for col in ("pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "length_m", "fit_rmse_m", "turn_m", "turn_elev_m"):
+        if col in out:
+            out[col] = out[col].astype(float).round(3)
+    for col in ("g1_pct", "g2_pct", "a_pct"):
+        if col in out:
+            out[col] = out[col].astype(float).round(4)
+    if "k" in out:
+        out["k"] = out["k"].astype(float).round(2)
+    return out
+
+
 def write_outputs(folder: Path, result, summary: dict) -> None:
     """Every output file of the run, into ``folder``."""
     write_profiles(folder / "profiles.parquet", result.profiles)
+    curves_for_csv(result.curves).to_csv(folder / "curves.csv", index=False)
     result.road_table().to_csv(folder / "roads.csv", index=False)
     result.data_notes().to_csv(folder / "data_notes.csv", index=False)

@@ -50,6 +50,22 @@ def test_demo_profiles(demo_out):
         assert g["chainage_m"].iloc[0] == 0.0
 
 
+def test_demo_curves_and_fitted_profile(demo_out):
+    """curves.csv carries the alignment columns of the output contract (DESIGN.md), in order;
+    profiles.parquet gains the fitted elevation and grade."""
+    c = pd.read_csv(demo_out / "curves.csv")
+    contract = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
+                "a_pct", "length_m", "k", "fit_rmse_m"]
+    assert list(c.columns[: len(contract)]) == contract
+    assert set(c["kind"]) <= {"crest", "sag"}
+    assert (c["pvc_m"] <= c["pvi_m"]).all() and (c["pvi_m"] <= c["pvt_m"]).all()
+    # K = L / A (common practice, no source)
+    ok = c["a_pct"] > 0
+    np.testing.assert_allclose(c.loc[ok, "k"], c.loc[ok, "length_m"] / c.loc[ok, "a_pct"], rtol=1e-3, atol=0.01)
+    p = pd.read_parquet(demo_out / "profiles.parquet")
+    assert {"fitted_z_m", "grade_pct"} <= set(p.columns)
+
+
 def test_console_script_prints_output_folder(tmp_path):
     out = tmp_path / "o"
     proc = subprocess.run([sys.executable, "-m", "pipeline.cli", "demo", "--out", str(out)],
