@@ -921,6 +921,13 @@ CURVE_COLUMNS = ["curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g
                  "length_m", "k", "fit_rmse_m", "turn_m", "turn_elev_m", "confidence", "flags"]
 
 
+def empty_curves() -> pd.DataFrame:
+    """A curve table with no rows but the right column types."""
+    text = {"kind", "confidence", "flags"}
+    return pd.DataFrame({c: pd.Series(dtype="int64" if c == "curve_no" else (str if c in text else float))
+                         for c in CURVE_COLUMNS})
+
+
 def _curve_table(stretches, ch, z, fitted, opts) -> pd.DataFrame:
     rows = []
     step = float(np.median(np.diff(ch))) if len(ch) > 1 else 1.0
@@ -981,6 +988,8 @@ def _curve_table(stretches, ch, z, fitted, opts) -> pd.DataFrame:
                 "confidence": "low" if low else ("medium" if flags else "high"),
                 "flags": "; ".join(dict.fromkeys(flags)),
             })
+    if not rows:
+        return empty_curves()
     frame = pd.DataFrame(rows, columns=CURVE_COLUMNS[1:])
     frame.insert(0, "curve_no", np.arange(1, len(frame) + 1))
     return frame

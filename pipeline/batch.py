@@ -24,10 +24,7 @@ from .ingest import (DemGround, PointGround, Roads, file_sha256, is_ballpark, op
 from .profile import (FILLED, FLAG_NAMES, MISSING, bilinear, locate_points, points_along, regularise, run_lengths,
                       station_chainages)
 
-CAUTION = (
-    "Screening results only. Every finding must be confirmed by field survey and by a licensed "
-    "engineer before any decision; local design codes and agency policy govern."
-)
+from .export import CAUTION_TEXT as CAUTION
 
 
 # --------------------------------------------------------------------- progress
@@ -51,6 +48,7 @@ class RoadOutcome:
     notes: list[tuple[str, float | None, float | None, str]] = field(default_factory=list)
     profile: pd.DataFrame | None = None
     curves: pd.DataFrame | None = None
+    keypoints: pd.DataFrame | None = None
     seconds: dict[str, float] = field(default_factory=dict)
 
     def skip(self, reason: str) -> "RoadOutcome":
@@ -188,15 +186,94 @@ def alignment_options(cfg: Config) -> dict:
                                                 "short_tangent_m", "bin_m", "noise_floor_m")}
 
 
-def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source) -> RoadOutcome:
+def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
+    """Available sight distance both ways on the fitted alignment (and, as a diagnostic, on
+    the ground profile); each curve also seen from its PVC and PVT (the sight stage)."""
+    from .alignment import RoadProfile
+    from .sight import (LIMIT_NAMES, attribute, crest_sight_formula, sag_sight_formula, sight_both_ways,
+                        sight_from)
+
+    prof, curves = out.profile, out.curves
+    ch = prof["chainage_m"].to_numpy()
+    fine = cfg["sight.fine_step_m"]
+    if len(ch) < 2 or not stretches:
+        for col in ("sight_fwd_m", "sight_back_m"):
+            prof[col] = np.nan
+        out.keypoints = None
+        return
+    road = RoadProfile(stretches)
+    res = sight_both_ways(ch, road.z, rules, fine, curves=curves, grade=road.grade)
+    for name in ("fwd", "back"):
+        prof[f"sight_{name}_m"] = res[f"sight_{name}_m"]
+        prof[f"limit_{name}"] = LIMIT_NAMES[res[f"limit_{name}"]]
+        prof[f"curve_{name}"] = res[f"curve_{name}"]
+        prof[f"limit_at_{name}_m"] = res[f"limit_at_{name}_m"]
+    if cfg["sight.ground_diagnostic"]:
+        z = prof["ground_z_m"].to_numpy()
+        ground = sight_both_ways(ch, lambda x: np.interp(x, ch, z, left=np.nan, right=np.nan), rules, fine)
+        prof["ground_sight_fwd_m"] = ground["sight_fwd_m"]
+        prof["ground_sight_back_m"] = ground["sight_back_m"]
+    # key points: each curve from its PVC looking ahead and from its PVT looking back
+    rows = []
+    if len(curves):
+        for direction, col, sign in (("increasing", "pvc_m", 1), ("decreasing", "pvt_m", -1)):
+            eyes = curves[col].to_numpy(dtype=float)
+            r = sight_from(eyes, road.z, road.grade, rules, sign, fine)
+            no = attribute(eyes, r["limit_at_m"], r["limit"], curves, forward=sign > 0)
+            keep = no == curves["curve_no"].to_numpy()
+            rows.append(pd.DataFrame({
+                "road_id": out.road_id, "chainage_m": eyes[keep], "direction": direction,
+                "sight_m": r["sight_m"][keep], "limit_kind": LIMIT_NAMES[r["limit"][keep]],
+                "curve_no": no[keep], "grade": sign * road.grade(eyes[keep]),
+            }))
+        a, L = curves["a_pct"].to_numpy(float), curves["length_m"].to_numpy(float)
+        curves["sight_formula_m"] = np.where(
+            curves["kind"] == "crest",
+            crest_sight_formula(a, L, rules.eye_height_m, rules.object_height_m),
+            sag_sight_formula(a, L, rules.headlight_height_m, rules.beam_angle_deg))
+    out.keypoints = pd.concat(rows, ignore_index=True) if rows else None
+
+
+def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Speed each road is judged at (km/h), its basis, and a skip reason where there is none.
+
+    The speed column's value plus ``speed.margin_kmh``; where it is empty or not positive,
+    the default for the road's class (``speed.default_by_class``); otherwise the road is
+    skipped."""
+    raw = table["speed_raw"].to_numpy(dtype=float)
+    margin = cfg["speed.margin_kmh"]
+    defaults = cfg["speed.default_by_class"]
+    speed = np.full(len(table), np.nan)
+    basis = np.full(len(table), None, dtype=object)
+    reason = np.full(len(table), None, dtype=object)
+    for i, (v, cls) in enumerate(zip(raw, table["road_class"])):
+        if np.isfinite(v) and v > 0:
+            speed[i] = v + margin
+            basis[i] = "attribute" if margin == 0 else f"attribute + {margin:g} km/h"
+        elif cls is not None and cls in defaults:
+            speed[i] = float(defaults[cls]) + margin
+            basis[i] = f"class default ({cls})"
+        else:
+            reason[i] = (f"no usable speed (column {cfg['roads.speed_column']!r} empty or not positive); "
+                         f"fill it in or set speed.default_by_class")
+    return speed, basis, reason
+
+
+def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source, rules) -> RoadOutcome:
     """Every per-road stage for one road, timed stage by stage."""
     t0 = time.perf_counter()
+    if not isinstance(row["skip_reason"], str) and isinstance(row.get("speed_reason"), str):
+        return RoadOutcome(road_id=row["road_id"]).skip(row["speed_reason"])
     out = road_profile(row, sampler, cfg, to_source)
     t1 = time.perf_counter()
     out.seconds["profile"] = t1 - t0
-    if out.status == "evaluated":
-        road_alignment(out, cfg)
-        out.seconds["alignment"] = time.perf_counter() - t1
+    if out.status != "evaluated":
+        return out
+    stretches = road_alignment(out, cfg)
+    t2 = time.perf_counter()
+    out.seconds["alignment"] = t2 - t1
+    road_sight(out, stretches, rules, cfg)
+    out.seconds["sight"] = time.perf_counter() - t2
     return out
 
 
@@ -208,6 +285,9 @@ class NetworkResult:
     timings: dict[str, float]
     ground_info: dict
     notes: list[str]
+    criteria: object = None
+    evaluation: object = None
+    step_m: float = 5.0
 
     @property
     def profiles(self) -> pd.DataFrame:
@@ -218,11 +298,24 @@ class NetworkResult:
 
     @property
     def curves(self) -> pd.DataFrame:
-        from .alignment import CURVE_COLUMNS
+        from .alignment import empty_curves
 
         frames = [o.curves for o in self.outcomes if o.curves is not None and len(o.curves)]
         if not frames:
-            return pd.DataFrame({c: [] for c in ["road_id"] + CURVE_COLUMNS})
+            empty = empty_curves()
+            empty.insert(0, "road_id", pd.Series(dtype=str))
+            empty["sight_formula_m"] = pd.Series(dtype=float)
+            return empty
+        return pd.concat(frames, ignore_index=True)
+
+    @property
+    def keypoints(self) -> pd.DataFrame:
+        frames = [o.keypoints for o in self.outcomes if getattr(o, "keypoints", None) is not None]
+        if not frames:
+            return pd.DataFrame({"road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float),
+                                 "direction": pd.Series(dtype=str), "sight_m": pd.Series(dtype=float),
+                                 "limit_kind": pd.Series(dtype=str), "curve_no": pd.Series(dtype="int64"),
+                                 "grade": pd.Series(dtype=float)})
         return pd.concat(frames, ignore_index=True)
 
     def road_table(self) -> pd.DataFrame:
@@ -232,6 +325,9 @@ class NetworkResult:
             "road_id": t["road_id"],
             "name": t["name"],
             "road_class": t["road_class"],
+            "aadt": t["aadt"],
+            "speed_kmh": t["speed_kmh"],
+            "speed_basis": t["speed_basis"],
             "length_m": t["length_m"].round(2),
             "status": [status[r].status for r in t["road_id"]],
             "reason": [status[r].reason for r in t["road_id"]],
@@ -249,29 +345,39 @@ def empty_profiles() -> pd.DataFrame:
     return pd.DataFrame({
         "road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float), "x": pd.Series(dtype=float),
         "y": pd.Series(dtype=float), "ground_z_m": pd.Series(dtype=float), "ground_flag": pd.Series(dtype=str),
+        "fitted_z_m": pd.Series(dtype=float), "grade_pct": pd.Series(dtype=float),
+        "sight_fwd_m": pd.Series(dtype=float), "sight_back_m": pd.Series(dtype=float),
+        "limit_fwd": pd.Series(dtype=str), "limit_back": pd.Series(dtype=str),
+        "curve_fwd": pd.Series(dtype="int64"), "curve_back": pd.Series(dtype="int64"),
     })
 
 
 def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
                 progress: Progress | None = None) -> NetworkResult:
-    """Ingest and the per-road stages for a whole network."""
+    """Ingest, the per-road stages and the evaluation, for a whole network."""
+    from .criteria import get_set
+    from .evaluate import evaluate
+
     progress = progress or Progress()
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
+    cset = get_set(cfg["criteria.set"], cfg["criteria.files"])
+    rules = cset.sight_rules()
     with progress.stage("reading roads and ground") as tick:
         roads = read_roads(roads_path, cfg)
         ground = open_ground(ground_path, cfg, roads)
         tick()
+    table = roads.table
+    table["speed_kmh"], table["speed_basis"], table["speed_reason"] = resolve_speeds(table, cfg)
     timings["ingest"] = time.perf_counter() - t0
 
     sampler = GroundSampler(ground, roads, cfg)
     back = {key: (None if crs is roads.source_crs else transformer(crs, roads.source_crs))
             for key, crs in roads.work_crs.items()}
     outcomes: list[RoadOutcome] = []
-    table = roads.table
-    with progress.stage("profiles and alignment", total=len(table)) as tick:
+    with progress.stage("profiles, curves, sight", total=len(table)) as tick:
         for _, row in table.iterrows():
-            outcomes.append(process_road(row, sampler, cfg, back.get(row["work_key"])))
+            outcomes.append(process_road(row, sampler, cfg, back.get(row["work_key"]), rules))
             tick()
     for o in outcomes:
         for stage, secs in o.seconds.items():
@@ -286,8 +392,20 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
             ground_info["points_for_unknown_roads"] = len(unknown)
             roads.notes.append(f"ground points for {len(unknown)} road id(s) not in the roads file ignored "
                                f"(e.g. {unknown[0]!r})")
-    return NetworkResult(roads=roads, outcomes=outcomes, timings=timings, ground_info=ground_info,
-                         notes=roads.notes + sampler.notes)
+    result = NetworkResult(roads=roads, outcomes=outcomes, timings=timings, ground_info=ground_info,
+                           notes=roads.notes + sampler.notes, criteria=cset, step_m=cfg["profile.step_m"])
+    t0 = time.perf_counter()
+    with progress.stage("judging curves (DuckDB)") as tick:
+        prof = result.profiles
+        cols = ["road_id", "chainage_m", "grade_pct", "sight_fwd_m", "sight_back_m", "limit_fwd", "limit_back",
+                "curve_fwd", "curve_back"]
+        for c in cols:
+            if c not in prof:
+                prof[c] = empty_profiles()[c]
+        result.evaluation = evaluate(result.road_table(), prof[cols], result.curves, result.keypoints, cset, cfg)
+        tick()
+    timings["evaluate"] = time.perf_counter() - t0
+    return result
 
 
 def accounting(result: NetworkResult) -> dict:
@@ -346,13 +464,15 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
             },
             "working_crs": {k: v.name for k, v in result.roads.work_crs.items()},
             "roads": accounting(result),
+            "criteria": {k: result.criteria.params[k] for k in ("name", "title", "source", "edition", "units")},
             "network_by_class": network_summary(result).to_dict(orient="records"),
+            "audit_summary": result.evaluation.summary.to_dict(orient="records"),
             "notes": result.notes,
             "stage_seconds": result.timings,
             "caution": CAUTION,
         }
         with progress.stage("writing outputs"):
-            write_outputs(tmp, result, summary)
+            write_outputs(tmp, result, summary, cfg)
         result.timings["export"] = time.perf_counter() - t0
         summary["finished_utc"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
         from .export import write_run_json

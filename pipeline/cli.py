@@ -22,13 +22,14 @@ DESCRIPTION = (
 
 # command-line flag -> config key (a flag overrides the config file)
 RUN_FLAGS = [
-    ("--id-column", "roads.id_column", str, "column with the road identifier [road_id]"),
-    ("--speed-column", "roads.speed_column", str, "column with the speed to judge each road at [speed_kmh]"),
-    ("--roads-layer", "roads.layer", str, "GeoPackage layer holding the centrelines"),
-    ("--roads-crs", "roads.crs", str, "CRS of a roads CSV, e.g. EPSG:32633"),
-    ("--ground-crs", "ground.crs", str, "CRS of ground points or DEM when the file has none"),
-    ("--elevation-unit", "ground.elevation_unit", str, "ground elevation unit: m, ft or us_ft [m]"),
-    ("--step-m", "profile.step_m", float, "station spacing along the road, metres [5]"),
+    ("--id-column", "roads.id_column", str, "COLUMN", "column with the road identifier [road_id]"),
+    ("--speed-column", "roads.speed_column", str, "COLUMN", "column with the speed to judge each road at [speed_kmh]"),
+    ("--roads-layer", "roads.layer", str, "LAYER", "GeoPackage layer holding the centrelines"),
+    ("--roads-crs", "roads.crs", str, "CRS", "CRS of a roads CSV, e.g. EPSG:32633"),
+    ("--ground-crs", "ground.crs", str, "CRS", "CRS of ground points or DEM when the file has none"),
+    ("--elevation-unit", "ground.elevation_unit", str, "UNIT", "ground elevation unit: m, ft or us_ft [m]"),
+    ("--step-m", "profile.step_m", float, "M", "station spacing along the road, metres [5]"),
+    ("--criteria", "criteria.set", str, "NAME", "criteria set to judge against [aashto-2018-metric]"),
 ]
 
 
@@ -51,9 +52,15 @@ def _parser() -> argparse.ArgumentParser:
                      help="ground model: DEM GeoTIFF, or ground points (CSV/GPKG: road_id, x, y, z)")
     run.add_argument("--config", metavar="FILE.toml", help="settings file (flags below override it)")
     run.add_argument("--out", required=True, metavar="DIR", help="output folder (replaced if it holds an earlier run)")
-    for flag, key, typ, text in RUN_FLAGS:
-        run.add_argument(flag, dest=key, type=typ, default=None, help=text)
+    for flag, key, typ, metavar, text in RUN_FLAGS:
+        run.add_argument(flag, dest=key, type=typ, default=None, metavar=metavar, help=text)
     common(run)
+
+    crit = sub.add_parser("criteria", help="list the criteria sets, or show one",
+                          description="List the criteria sets (published SSD and K values), or show one.")
+    crit.add_argument("name", nargs="?", help="set to show, e.g. aashto-2018-metric")
+    crit.add_argument("--config", metavar="FILE.toml", help="settings file (for criteria.files of your own)")
+    crit.add_argument("--template", action="store_true", help="print a CSV to fill in for a set of your own")
 
     demo = sub.add_parser("demo", help="run the audit on the bundled sample network",
                           description="Run the whole audit on the bundled Wendle Vale sample network.")
@@ -147,6 +154,38 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     return 0
 
 
+def _criteria(args) -> int:
+    from .config import load_config
+    from .criteria import get_set, load_sets, template
+
+    if args.template:
+        print(template(), end="")
+        return 0
+    files = load_config(args.config)["criteria.files"]
+    if not args.name:
+        sets, _ = load_sets(files)
+        print("Criteria sets (sightaudit criteria NAME shows one):")
+        for _, r in sets.iterrows():
+            print(f"  {r['name']:<24} {r['title']} [{r['units']}]")
+        return 0
+    cs = get_set(args.name, files)
+    p = cs.params
+    lu, su = ("m", "km/h") if cs.metric else ("ft", "mph")
+    print(f"{p['name']}: {p['title']}")
+    print(f"  source:   {p['source']}")
+    print(f"  edition:  {p['edition']}")
+    print(f"  values:   {p['source_marks']}")
+    print(f"  heights:  eye {p['eye_height']:g} {lu}, object {p['object_height']:g} {lu}, "
+          f"headlight {p['headlight_height']:g} {lu}, beam {p['beam_angle_deg']:g} deg up")
+    print(f"  braking:  reaction {p['reaction_time_s']:g} s, deceleration {p['deceleration']:g} {lu}/s2; "
+          f"SSD = {p['speed_coef']:g} V t + {p['braking_coef']:g} V^2 / a, rounded up to {p['rounding_step']:g} {lu}")
+    print(f"  K:        crest S^2 / {p['crest_k_const']:g}; sag S^2 / ({p['sag_k_const']:g} + {p['sag_k_per_s']:g} S)")
+    print(f"  {'speed ' + su:>10} {'SSD ' + lu:>8} {'crest K':>8} {'sag K':>6}")
+    for _, r in cs.table.iterrows():
+        print(f"  {r['speed']:>10g} {r['ssd_design']:>8g} {r['crest_k']:>8g} {r['sag_k']:>6g}")
+    return 0
+
+
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     if args.command is None:
@@ -155,8 +194,10 @@ def main(argv: list[str] | None = None) -> int:
     start = time.perf_counter()
     try:
         if args.command == "run":
-            overrides = {key: getattr(args, key) for _, key, _, _ in RUN_FLAGS}
+            overrides = {key: getattr(args, key) for _, key, _, _, _ in RUN_FLAGS}
             return _run(args, args.roads, args.ground, overrides, args.config)
+        if args.command == "criteria":
+            return _criteria(args)
         if args.command == "demo":
             from .resources import sample_paths
 
@@ -168,6 +209,11 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("sightaudit: interrupted; no output was written", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into a pager or head that stopped reading
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except Exception as err:  # a bug, not bad input
         if getattr(args, "verbose", False):
             raise

@@ -51,6 +51,25 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "bin_m": (10.0, "the number and rough place of PVIs are found on means over bins this long (m)"),
         "noise_floor_m": (0.002, "ground noise is taken as at least this when estimating it from the data (m)"),
     },
+    "criteria": {
+        "set": ("aashto-2018-metric", "criteria set to judge against (sightaudit criteria lists them)"),
+        "grade_adjusted": (False, "required SSD on the grade of each station rather than level (as the K tables assume)"),
+        "files": ([], "CSV files adding criteria sets of your own (sightaudit criteria --template)"),
+    },
+    "speed": {
+        "margin_kmh": (0.0, "added to every road's speed before judging (e.g. 10 to judge at posted + 10 km/h)"),
+        "default_by_class": ({}, "speed (km/h) for roads of a class with no speed, e.g. { local = 60 }"),
+    },
+    "sight": {
+        "fine_step_m": (1.0, "spacing of the road samples a sight line is checked against (m)"),
+        "ground_diagnostic": (True, "also measure sight distance on the raw ground profile (diagnostic columns)"),
+    },
+    "inventory": {
+        "severity_bands_kmh": ([10.0, 20.0], "speed gaps (km/h) separating minor, moderate and severe deficiencies"),
+        "priority_weights": ({"shortfall": 1.0, "speed": 1.0, "exposure": 1.0},
+                             "weights of shortfall, speed gap and traffic exposure in the priority score"),
+        "aadt_ref": (20000.0, "AADT at which the exposure factor of the priority score reaches its maximum"),
+    },
 }
 
 
@@ -93,6 +112,31 @@ def _coerce(key: str, value: Any, default: Any, source: str) -> Any:
     )
 
 
+def _check_value(key: str, value: Any, source: str) -> None:
+    """Checks beyond the type, for settings with structure."""
+    def bad(msg):
+        raise InputError(f"{source}: {key} {msg}")
+
+    if key == "inventory.severity_bands_kmh":
+        if len(value) != 2 or not all(isinstance(v, (int, float)) for v in value) or not 0 <= value[0] <= value[1]:
+            bad("must be two speeds in km/h, smaller first, e.g. [10, 20]")
+    elif key == "inventory.priority_weights":
+        extra = set(value) - {"shortfall", "speed", "exposure"}
+        if extra:
+            bad(f"has unknown weight(s) {', '.join(sorted(extra))}; use shortfall, speed, exposure")
+        if not all(isinstance(v, (int, float)) and v >= 0 for v in value.values()) or sum(value.values()) <= 0:
+            bad("weights must be numbers >= 0, not all zero")
+    elif key == "speed.default_by_class":
+        if not all(isinstance(v, (int, float)) and v > 0 for v in value.values()):
+            bad("speeds must be positive numbers, e.g. { local = 60, collector = 80 }")
+    elif key == "criteria.files":
+        if not all(isinstance(v, str) for v in value):
+            bad("must be a list of file paths")
+    elif key in ("profile.step_m", "sight.fine_step_m", "ground.max_offset_m", "profile.max_gap_m",
+                 "inventory.aadt_ref") and not value > 0:
+        bad("must be positive")
+
+
 class Config:
     """Settings as used by one run. ``cfg["profile.step_m"]`` reads a value."""
 
@@ -116,7 +160,11 @@ class Config:
                         f"{source}: unknown key {section}.{key}; did you mean {_nearest_key(key, section)}?"
                     )
                 default = SPEC[section][key][0]
-                self._values[section][key] = _coerce(f"{section}.{key}", value, default, source)
+                value = _coerce(f"{section}.{key}", value, default, source)
+                if isinstance(default, dict):
+                    value = default | value if section == "inventory" else value
+                _check_value(f"{section}.{key}", value, source)
+                self._values[section][key] = value
 
     def set(self, dotted: str, value: Any, source: str = "command line") -> None:
         section, _, key = dotted.partition(".")

@@ -69,24 +69,286 @@ def write_profiles(path: Path, profiles: pd.DataFrame) -> None:
     profiles.to_parquet(path, index=False)
 
 
-def curves_for_csv(curves: pd.DataFrame) -> pd.DataFrame:
-    """Curve table rounded for reading: chainages and elevations to the millimetre, grades to
-    1e-4 %, K to 0.01."""
-    out = curves.copy()
-    for col in ("pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "length_m", "fit_rmse_m", "turn_m", "turn_elev_m"):
-        if col in out:
-            out[col] = out[col].astype(float).round(3)
-    for col in ("g1_pct", "g2_pct", "a_pct"):
-        if col in out:
-            out[col] = out[col].astype(float).round(4)
-    if "k" in out:
-        out["k"] = out["k"].astype(float).round(2)
+CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
+                  "a_pct", "length_m", "k", "fit_rmse_m", "sight_available_m", "ssd_required_m", "speed_kmh",
+                  "deficient"]
+CURVE_EXTRA = ["supported_speed_kmh", "k_required", "k_below_table", "sight_increasing_m", "sight_decreasing_m",
+               "sight_formula_m", "sight_limited_by", "turn_m", "turn_elev_m", "confidence", "flags"]
+DEFICIENCY_CONTRACT = ["rank", "road_id", "curve_no", "kind", "direction", "from_m", "to_m", "speed_kmh",
+                       "supported_speed_kmh", "ssd_required_m", "sight_available_m", "shortfall_m", "k",
+                       "k_required", "aadt", "priority_score"]
+DEFICIENCY_EXTRA = ["severity", "speed_gap_kmh", "stretch_length_m", "road_name", "road_class", "speed_basis",
+                    "a_pct", "curve_length_m", "pvi_m", "confidence", "limit_kind", "f_shortfall", "f_speed",
+                    "f_exposure"]
+
+# what each column means, for the spreadsheet's header notes and the method sheet
+COLUMN_NOTES = {
+    "road_id": "road identifier from the roads file",
+    "curve_no": "vertical curve number along the road, from its first vertex",
+    "kind": "crest (grade decreases) or sag (grade increases)",
+    "pvc_m": "chainage of the start of the curve (m from the road's first vertex)",
+    "pvi_m": "chainage of the point of vertical intersection (m)",
+    "pvt_m": "chainage of the end of the curve (m)",
+    "pvi_elev_m": "elevation of the PVI (m)",
+    "g1_pct": "grade entering the curve, in the direction of increasing chainage (%)",
+    "g2_pct": "grade leaving the curve (%)",
+    "a_pct": "algebraic difference of grades A = |g2 - g1| (%)",
+    "length_m": "horizontal length of the curve L (m)",
+    "k": "rate of vertical curvature K = L / A (m per %)",
+    "fit_rmse_m": "root-mean-square misfit of the fitted curve to the ground profile (m)",
+    "sight_available_m": "shortest sight distance this curve allows a driver, either direction (m)",
+    "ssd_required_m": "stopping sight distance required at the road's speed by the criteria set (m)",
+    "speed_kmh": "speed the road is judged at (km/h)",
+    "deficient": "true where the available sight distance is below the required SSD",
+    "supported_speed_kmh": "highest speed whose SSD the available sight distance meets (km/h)",
+    "k_required": "K the criteria set tabulates for the road's speed (m per %)",
+    "k_below_table": "true where K is below the table value (a short curve may still give enough sight)",
+    "sight_increasing_m": "shortest sight distance travelling with increasing chainage (m)",
+    "sight_decreasing_m": "shortest sight distance travelling with decreasing chainage (m)",
+    "sight_formula_m": "sight distance from the closed-form AASHTO expression for this A and L (m)",
+    "sight_limited_by": "whether this curve limits any driver's sight within the look-ahead",
+    "turn_m": "chainage of the high (crest) or low (sag) point where it lies on the curve (m)",
+    "turn_elev_m": "elevation of the high or low point (m)",
+    "confidence": "how far the recovered curve can be trusted: high, medium or low",
+    "flags": "why confidence is not high",
+    "rank": "1 = first to fix",
+    "direction": "direction of travel: increasing or decreasing chainage",
+    "from_m": "start of the deficient stretch: driver positions lacking SSD (m)",
+    "to_m": "end of the deficient stretch (m)",
+    "shortfall_m": "required SSD minus available sight distance (m)",
+    "aadt": "annual average daily traffic (vehicles/day)",
+    "priority_score": "0-100, higher first; formula in the Method sheet and the README",
+    "severity": "minor / moderate / severe by the speed gap",
+    "speed_gap_kmh": "road speed minus supported speed (km/h)",
+    "stretch_length_m": "length of the deficient stretch (m)",
+    "road_name": "road name",
+    "road_class": "road class",
+    "speed_basis": "where the judged speed comes from",
+    "curve_length_m": "length of the curve (m)",
+    "limit_kind": "what limits sight: line of sight (crest) or headlight (sag)",
+    "f_shortfall": "priority factor: shortfall / required SSD (0-1)",
+    "f_speed": "priority factor: speed gap / 50 km/h (0-1)",
+    "f_exposure": "priority factor: ln(1 + AADT) / ln(1 + reference AADT) (0-1)",
+    "status": "evaluated, or skipped with a reason",
+    "reason": "why the road was skipped",
+    "length_m_road": "road length (m)",
+}
+
+
+def _round(frame: pd.DataFrame) -> pd.DataFrame:
+    """Round for reading: metres to the millimetre, grades to 1e-4 %, K to 0.01, speeds and
+    scores to 0.1."""
+    out = frame.copy()
+    for col in out.columns:
+        if not pd.api.types.is_float_dtype(out[col]):
+            continue
+        if col.endswith("_pct"):
+            out[col] = out[col].round(4)
+        elif col in ("k", "k_required"):
+            out[col] = out[col].round(2)
+        elif col.endswith("_kmh") or col == "priority_score":
+            out[col] = out[col].round(1)
+        elif col.startswith("f_"):
+            out[col] = out[col].round(3)
+        elif col.endswith("_m"):
+            out[col] = out[col].round(3)
     return out
 
 
-def write_outputs(folder: Path, result, summary: dict) -> None:
+def curves_table(evaluation_curves: pd.DataFrame) -> pd.DataFrame:
+    c = evaluation_curves.copy()
+    if "k_below_table" not in c:
+        c["k_below_table"] = c["k"] < c["k_required"]
+    cols = CURVE_CONTRACT + [x for x in CURVE_EXTRA if x in c]
+    return _round(c[cols])
+
+
+def deficiencies_table(inventory: pd.DataFrame) -> pd.DataFrame:
+    cols = DEFICIENCY_CONTRACT + [x for x in DEFICIENCY_EXTRA if x in inventory]
+    out = _round(inventory[cols])
+    out["curve_no"] = out["curve_no"].astype("Int64")
+    return out
+
+
+def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[tuple[str, str]],
+               summary_lines: list[tuple[str, str]]) -> None:
+    """A workbook for the asset-management spreadsheet: a summary sheet, one sheet per table
+    (frozen header row, column widths to fit, a note on each header cell saying what it holds
+    and its unit) and a method sheet with the criteria set's source and the cautions."""
+    import xlsxwriter
+
+    wb = xlsxwriter.Workbook(str(path), {"nan_inf_to_errors": True, "strings_to_numbers": False})
+    head = wb.add_format({"bold": True, "bg_color": "#DDE4EE", "border": 1, "text_wrap": True, "valign": "top"})
+    bold = wb.add_format({"bold": True})
+    wrap = wb.add_format({"text_wrap": True, "valign": "top"})
+    title = wb.add_format({"bold": True, "font_size": 14})
+    warn = wb.add_format({"bold": True, "font_color": "#9C2A00", "text_wrap": True})
+
+    ws = wb.add_worksheet("Summary")
+    ws.write(0, 0, "Stopping-sight-distance screening audit", title)
+    row = 2
+    for k, v in summary_lines:
+        ws.write(row, 0, k, bold)
+        ws.write(row, 1, v, warn if k == "Caution" else wrap)
+        row += 1
+    row += 1
+    ws.set_column(0, 0, 28)
+    ws.set_column(1, 1, 90)
+    net = sheets.get("_summary")
+    if net is not None:
+        ws.write(row, 0, "By road class", bold)
+        row += 1
+        for j, col in enumerate(net.columns):
+            ws.write(row, j, col, head)
+        for i, rec in enumerate(net.itertuples(index=False), start=row + 1):
+            for j, v in enumerate(rec):
+                ws.write(i, j, _cell(v))
+        ws.set_column(2, len(net.columns), 14)
+
+    for name, frame in sheets.items():
+        if name.startswith("_"):
+            continue
+        sh = wb.add_worksheet(name)
+        for j, col in enumerate(frame.columns):
+            sh.write(0, j, col, head)
+            note = COLUMN_NOTES.get(col)
+            if note:
+                sh.write_comment(0, j, note, {"x_scale": 2})
+            values = frame[col]
+            width = max([len(str(col))] + [len(str(_cell(v))) for v in values.head(200)]) + 2
+            sh.set_column(j, j, min(max(width, 8), 60))
+        for i, rec in enumerate(frame.itertuples(index=False), start=1):
+            for j, v in enumerate(rec):
+                sh.write(i, j, _cell(v))
+        sh.freeze_panes(1, 0)
+        sh.autofilter(0, 0, max(len(frame), 1), max(len(frame.columns) - 1, 0))
+
+    ms = wb.add_worksheet("Method")
+    ms.set_column(0, 0, 28)
+    ms.set_column(1, 1, 110)
+    for i, (k, v) in enumerate(method_lines):
+        ms.write(i, 0, k, bold)
+        ms.write(i, 1, v, warn if k == "Caution" else wrap)
+    wb.close()
+
+
+def _cell(v):
+    if v is None or (isinstance(v, float) and not np.isfinite(v)) or v is pd.NA:
+        return ""
+    if isinstance(v, (np.bool_, bool)):
+        return bool(v)
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, np.floating):
+        return float(v)
+    return v if isinstance(v, (int, float, str)) else str(v)
+
+
+def _substring(line, start: float, end: float):
+    import shapely.ops
+
+    start, end = max(0.0, start), min(float(line.length), end)
+    seg = shapely.ops.substring(line, start, end)
+    if seg.geom_type != "LineString":  # a point where start == end: a short line around it
+        seg = shapely.ops.substring(line, max(0.0, start - 0.5), min(float(line.length), end + 0.5))
+    return seg
+
+
+def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame) -> None:
+    """Layers ``roads``, ``curves`` (PVC-PVT lines) and ``deficiencies`` (the deficient
+    stretches, cut from the centreline by chainage and drawn half a station beyond their end
+    stations), all in the roads' CRS."""
+    import geopandas as gpd
+    import shapely
+
+    roads = result.roads
+    t = roads.table.set_index("road_id", drop=False)
+    crs = roads.source_crs
+    step = result.step_m
+    road_attrs = result.road_table()
+    gpd.GeoDataFrame(road_attrs, geometry=list(t["geometry_src"].reindex(road_attrs["road_id"])), crs=crs) \
+        .to_file(path, layer="roads", driver="GPKG", engine="pyogrio")
+
+    back = {k: roads.to_source(k) if roads.work_crs[k] is not crs else None for k in roads.work_crs}
+
+    def cut(road_id, a, b):
+        line = t.at[road_id, "geometry"]
+        seg = _substring(line, a, b)
+        tr = back[t.at[road_id, "work_key"]]
+        if tr is not None:
+            seg = shapely.transform(seg, lambda xy: np.column_stack(tr.transform(xy[:, 0], xy[:, 1])))
+        return seg
+
+    cg = [cut(r.road_id, r.pvc_m, r.pvt_m) for r in curves.itertuples()]
+    gpd.GeoDataFrame(curves, geometry=cg, crs=crs).to_file(path, layer="curves", driver="GPKG", engine="pyogrio")
+    dg = [cut(r.road_id, r.from_m - step / 2, r.to_m + step / 2) for r in deficiencies.itertuples()]
+    gpd.GeoDataFrame(deficiencies, geometry=dg, crs=crs).to_file(path, layer="deficiencies", driver="GPKG",
+                                                                engine="pyogrio")
+
+
+def method_lines(result, cfg) -> list[tuple[str, str]]:
+    c = result.criteria.params
+    w = cfg["inventory.priority_weights"]
+    bands = cfg["inventory.severity_bands_kmh"]
+    return [
+        ("Caution", CAUTION_TEXT),
+        ("Criteria set", f"{c['name']}: {c['title']}"),
+        ("Source", str(c["source"])),
+        ("Edition", str(c["edition"])),
+        ("Source confidence", str(c["source_marks"])),
+        ("Heights", f"eye {c['eye_height']}, object {c['object_height']}, headlight {c['headlight_height']} "
+                    f"({'m' if c['units'] == 'metric' else 'ft'}); beam {c['beam_angle_deg']} degrees up"),
+        ("Braking", f"reaction time {c['reaction_time_s']} s, deceleration {c['deceleration']} "
+                    f"{'m/s2' if c['units'] == 'metric' else 'ft/s2'}"),
+        ("Required SSD", "design SSD of the criteria table at a tabulated speed; between rows the set's formula "
+                         "rounded up to its step" + (" on the grade of each station" if cfg["criteria.grade_adjusted"]
+                                                     else " (level road, as the K tables assume)")),
+        ("Profile", "ground elevation every " + f"{cfg['profile.step_m']:g} m along each centreline"),
+        ("Alignment", "tangents and symmetric parabolic curves recovered from the profile: optimal "
+                      "segmentation (Jackson et al. 2005; Killick et al. 2012), model selection by the Bayesian "
+                      "information criterion (Schwarz 1978), joint nonlinear least squares"),
+        ("Sight distance", "on the recovered alignment, both directions: line of sight from eye to object over "
+                           "crests, headlight reach on sags (AASHTO Green Book ch. 3); checked against the "
+                           "closed-form expressions"),
+        ("Deficient", "a curve whose available sight distance is below the required SSD in either direction; "
+                      "K below the table is reported separately (k_below_table)"),
+        ("Severity", f"speed gap below {bands[0]:g} km/h minor, {bands[0]:g}-{bands[1]:g} moderate, "
+                     f"over {bands[1]:g} severe"),
+        ("Priority score", f"100 x ({w['shortfall']:g} f_shortfall + {w['speed']:g} f_speed + "
+                           f"{w['exposure']:g} f_exposure) / {sum(w.values()):g}; f_shortfall = shortfall / "
+                           f"required SSD, f_speed = speed gap / 50 km/h, f_exposure = ln(1 + AADT) / "
+                           f"ln(1 + {cfg['inventory.aadt_ref']:g}), each at most 1"),
+    ]
+
+
+CAUTION_TEXT = ("Screening results only. Every finding must be confirmed by field survey and by a licensed engineer "
+                "before any decision; local design codes and agency policy govern over the published criteria "
+                "used here.")
+
+
+def write_outputs(folder: Path, result, summary: dict, cfg) -> None:
     """Every output file of the run, into ``folder``."""
+    ev = result.evaluation
+    curves = curves_table(ev.curves)
+    defs = deficiencies_table(ev.inventory)
     write_profiles(folder / "profiles.parquet", result.profiles)
-    curves_for_csv(result.curves).to_csv(folder / "curves.csv", index=False)
-    result.road_table().to_csv(folder / "roads.csv", index=False)
-    result.data_notes().to_csv(folder / "data_notes.csv", index=False)
+    curves.to_csv(folder / "curves.csv", index=False)
+    defs.to_csv(folder / "deficiencies.csv", index=False)
+    roads = result.road_table()
+    notes = result.data_notes()
+    roads.to_csv(folder / "roads.csv", index=False)
+    notes.to_csv(folder / "data_notes.csv", index=False)
+    r = summary["roads"]
+    summary_lines = [
+        ("Caution", CAUTION_TEXT),
+        ("Criteria set", f"{result.criteria.params['name']} ({result.criteria.params['title']})"),
+        ("Roads", f"{r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped (see the Roads sheet)"),
+        ("Curves", f"{len(curves)} found, {int(curves['deficient'].sum())} deficient"),
+        ("Deficient stretches", f"{len(defs)} (ranked in the Deficiencies sheet; rank 1 first to fix)"),
+        ("Run", f"sightaudit {summary['version']}, {summary['started_utc']}"),
+    ]
+    write_xlsx(folder / "deficiencies.xlsx",
+               {"_summary": _round(ev.summary), "Deficiencies": defs, "Curves": curves, "Roads": roads,
+                "Data notes": notes},
+               method_lines(result, cfg), summary_lines)
+    write_gpkg(folder / "audit.gpkg", result, curves, defs)

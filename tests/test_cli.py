@@ -160,7 +160,7 @@ def test_csv_without_crs(tmp_path, run_cli):
 
 
 def test_csv_roads_with_crs_and_chainage_points(tmp_path, run_cli):
-    (tmp_path / "r.csv").write_text('road_id,wkt\n12,"LINESTRING (0 0, 100 0)"\n')
+    (tmp_path / "r.csv").write_text('road_id,wkt,speed_kmh\n12,"LINESTRING (0 0, 100 0)",60\n')
     (tmp_path / "g.csv").write_text("road_id,chainage_m,z\n12,0,1\n12,50,2\n12,100,3\n")
     code, _, err = run_cli("run", "--roads", tmp_path / "r.csv", "--ground", tmp_path / "g.csv",
                            "--roads-crs", "EPSG:32633", "--out", tmp_path / "o", "-q")

@@ -1,0 +1,204 @@
+"""Criteria sets: the published values a curve is judged against, kept as data.
+
+A set has one row in ``sql/criteria/sets.csv`` (name, source, edition, units,
+heights, beam angle, reaction time, deceleration, formula constants, rounding
+step, look-ahead) and one row per tabulated speed in ``sql/criteria/speeds.csv``
+(design SSD, crest K, sag K). A user adds a set without touching code: a CSV
+with the set's columns and the speed columns on every row (see
+``sightaudit criteria --template``), named in the config (``criteria.files``).
+
+Lengths, heights and speeds are in the set's own units (``metric``: m and km/h;
+``us``: ft and mph); :meth:`CriteriaSet.sight_rules` converts what the sight
+computation needs to metres with PROJ's unit definitions.
+
+Formulas (AASHTO Green Book, ch. 3; constants per set):
+
+    SSD = speed_coef V t + braking_coef V^2 / a                      (level)
+    SSD = speed_coef V t + V^2 / (grade_coef (a / gravity + G))      (on grade G)
+    design SSD = calculated SSD rounded up to ``rounding_step``
+    crest K = S^2 / crest_k_const;  sag K = S^2 / (sag_k_const + sag_k_per_s S)
+    design K = calculated K (to 0.1) rounded up to a whole number
+
+At a tabulated speed the table governs; between rows the formulas and the
+rounding rule give the value (the same rule reproduces every shipped row).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .errors import InputError
+from .resources import sql_dir
+from .units import kmh_per_mph, metres_per
+
+SET_COLUMNS = ["name", "title", "source", "edition", "units", "eye_height", "object_height", "headlight_height",
+               "beam_angle_deg", "reaction_time_s", "deceleration", "gravity", "speed_coef", "braking_coef",
+               "grade_coef", "rounding_step", "crest_k_const", "sag_k_const", "sag_k_per_s", "lookahead",
+               "source_marks"]
+SPEED_COLUMNS = ["set_name", "speed", "ssd_design", "crest_k", "sag_k", "marks"]
+_NUMERIC_SET = SET_COLUMNS[5:-1]
+
+
+@dataclass(frozen=True)
+class CriteriaSet:
+    """One criteria set: its parameters (``params``, set units) and speed table."""
+
+    params: dict
+    table: pd.DataFrame
+
+    @property
+    def name(self) -> str:
+        return self.params["name"]
+
+    @property
+    def metric(self) -> bool:
+        return self.params["units"] == "metric"
+
+    @property
+    def length_to_m(self) -> float:
+        return 1.0 if self.metric else metres_per("ft")
+
+    @property
+    def speed_to_kmh(self) -> float:
+        return 1.0 if self.metric else kmh_per_mph()
+
+    def sight_rules(self):
+        from .sight import SightRules
+
+        f = self.length_to_m
+        p = self.params
+        return SightRules(eye_height_m=p["eye_height"] * f, object_height_m=p["object_height"] * f,
+                          headlight_height_m=p["headlight_height"] * f, beam_angle_deg=p["beam_angle_deg"],
+                          lookahead_m=p["lookahead"] * f)
+
+    # --- the set's formulas, in its own units (used by tests and the CLI; SQL mirrors them)
+    def ssd_calculated(self, speed, grade=None):
+        """Calculated (unrounded) SSD at ``speed`` (set units), level or on ``grade`` (fraction)."""
+        p = self.params
+        v = np.asarray(speed, dtype=float)
+        react = p["speed_coef"] * v * p["reaction_time_s"]
+        if grade is None:
+            return react + p["braking_coef"] * v**2 / p["deceleration"]
+        g = np.asarray(grade, dtype=float)
+        return react + v**2 / (p["grade_coef"] * (p["deceleration"] / p["gravity"] + g))
+
+    def ssd_design(self, speed):
+        """Design SSD: the table at a tabulated speed, else the calculated value rounded up."""
+        v = np.atleast_1d(np.asarray(speed, dtype=float))
+        step = self.params["rounding_step"]
+        out = np.ceil(self.ssd_calculated(v) / step - 1e-9) * step
+        tab = self.table.set_index("speed")["ssd_design"]
+        for i, vi in enumerate(v):
+            hit = np.isclose(tab.index.to_numpy(dtype=float), vi, atol=1e-6)
+            if hit.any():
+                out[i] = float(tab.to_numpy()[hit][0])
+        return out if np.ndim(speed) else float(out[0])
+
+    def k_design(self, speed, kind: str):
+        """Design K (set units) for a crest or sag: the table, else the formula on the design SSD."""
+        v = np.atleast_1d(np.asarray(speed, dtype=float))
+        s = np.atleast_1d(self.ssd_design(v))
+        p = self.params
+        if kind == "crest":
+            k = s**2 / p["crest_k_const"]
+        else:
+            k = s**2 / (p["sag_k_const"] + p["sag_k_per_s"] * s)
+        out = np.ceil(np.round(k, 1) - 1e-9)
+        col = "crest_k" if kind == "crest" else "sag_k"
+        tab = self.table.set_index("speed")[col]
+        for i, vi in enumerate(v):
+            hit = np.isclose(tab.index.to_numpy(dtype=float), vi, atol=1e-6)
+            if hit.any():
+                out[i] = float(tab.to_numpy()[hit][0])
+        return out if np.ndim(speed) else float(out[0])
+
+    def supported_speed(self, sight, grade=None):
+        """Highest speed (set units) whose calculated SSD the sight distance meets: the
+        positive root of the SSD formula solved for V."""
+        p = self.params
+        S = np.asarray(sight, dtype=float)
+        b = p["speed_coef"] * p["reaction_time_s"]
+        if grade is None:
+            a = p["braking_coef"] / p["deceleration"]
+        else:
+            a = 1.0 / (p["grade_coef"] * (p["deceleration"] / p["gravity"] + np.asarray(grade, dtype=float)))
+        return (-b + np.sqrt(b * b + 4 * a * S)) / (2 * a)
+
+
+def _read_csv(path: Path, what: str) -> pd.DataFrame:
+    try:
+        return pd.read_csv(path, dtype=str, keep_default_na=False)
+    except FileNotFoundError:
+        raise InputError(f"{path}: criteria file not found; check criteria.files") from None
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: not a readable {what} CSV ({' '.join(str(exc).split())[:120]})") from None
+
+
+def _check(frame: pd.DataFrame, columns: list[str], numeric: list[str], path: Path) -> pd.DataFrame:
+    missing = [c for c in columns if c not in frame.columns]
+    if missing:
+        raise InputError(f"{path}: criteria file lacks column(s) {', '.join(missing)}; see sightaudit criteria --template")
+    out = frame[columns].copy()
+    for col in numeric:
+        vals = pd.to_numeric(out[col].str.strip(), errors="coerce")
+        bad = np.flatnonzero(vals.isna().to_numpy())
+        if len(bad):
+            raise InputError(f"{path}: row {bad[0] + 2}, column {col}: {out[col].iloc[bad[0]]!r} is not a number")
+        out[col] = vals.astype(float)
+    return out
+
+
+def load_sets(extra_files: list[str] | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """All criteria sets: the shipped ones and those in ``extra_files``. Returns the sets
+    table and the speeds table."""
+    base = sql_dir() / "criteria"
+    sets = _check(_read_csv(base / "sets.csv", "sets"), SET_COLUMNS, _NUMERIC_SET, base / "sets.csv")
+    speeds = _check(_read_csv(base / "speeds.csv", "speeds"), SPEED_COLUMNS, ["speed", "ssd_design", "crest_k", "sag_k"],
+                    base / "speeds.csv")
+    for f in extra_files or []:
+        path = Path(f)
+        raw = _read_csv(path, "criteria")
+        if "set_name" not in raw.columns and "name" in raw.columns:
+            raw["set_name"] = raw["name"]
+        s = _check(raw, SET_COLUMNS, _NUMERIC_SET, path).drop_duplicates("name")
+        if len(s) != 1:
+            raise InputError(f"{path}: a criteria file holds one set; found {len(s)} names")
+        sp = _check(raw, SPEED_COLUMNS, ["speed", "ssd_design", "crest_k", "sag_k"], path)
+        if s["name"].iloc[0] in set(sets["name"]):
+            raise InputError(f"{path}: a set named {s['name'].iloc[0]!r} exists already; give yours another name")
+        sets = pd.concat([sets, s], ignore_index=True)
+        speeds = pd.concat([speeds, sp], ignore_index=True)
+    bad_units = sets.loc[~sets["units"].isin(["metric", "us"]), "name"].tolist()
+    if bad_units:
+        raise InputError(f"criteria set {bad_units[0]!r}: units must be 'metric' or 'us'")
+    return sets, speeds
+
+
+def get_set(name: str, extra_files: list[str] | None = None) -> CriteriaSet:
+    """The named criteria set; an unknown name stops the run naming the known ones."""
+    import difflib
+
+    sets, speeds = load_sets(extra_files)
+    if name not in set(sets["name"]):
+        near = difflib.get_close_matches(name, sets["name"].tolist(), n=1, cutoff=0.0)
+        raise InputError(f"unknown criteria set {name!r}; did you mean {near[0]!r}? "
+                         f"(known: {', '.join(sets['name'])}; see sightaudit criteria)")
+    row = sets[sets["name"] == name].iloc[0].to_dict()
+    table = speeds[speeds["set_name"] == name].sort_values("speed").reset_index(drop=True)
+    return CriteriaSet(params=row, table=table)
+
+
+def template() -> str:
+    """A CSV a user can fill in to add a set (one row per tabulated speed)."""
+    cols = SET_COLUMNS + [c for c in SPEED_COLUMNS if c != "set_name"]
+    ex = get_set("aashto-2018-metric")
+    rows = [",".join(cols)]
+    for _, r in ex.table.head(2).iterrows():
+        vals = [("my-agency-metric" if c == "name" else str(ex.params[c])) for c in SET_COLUMNS]
+        vals += [str(r[c]) for c in SPEED_COLUMNS if c != "set_name"]
+        rows.append(",".join(f'"{v}"' if "," in v else v for v in vals))
+    return "\n".join(rows) + "\n"

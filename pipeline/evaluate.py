@@ -1,0 +1,59 @@
+"""Judge curves and stations against a criteria set, and build the ranked inventory.
+
+The rules live in SQL (``sql/criteria_macros.sql``, ``sql/evaluate.sql``,
+``sql/inventory.sql``, ``sql/summary.sql``), run by an in-process DuckDB over the
+per-road results; this module only assembles the input tables and returns the
+results as DataFrames.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import duckdb
+import numpy as np
+import pandas as pd
+
+from .config import Config
+from .criteria import CriteriaSet
+from .sqlrun import sql_text
+
+
+@dataclass
+class Evaluation:
+    curves: pd.DataFrame      # every curve with its verdict
+    inventory: pd.DataFrame   # ranked deficient stretches
+    summary: pd.DataFrame     # network summary by road class
+
+
+def params_table(cfg: Config) -> pd.DataFrame:
+    bands = cfg["inventory.severity_bands_kmh"]
+    w = cfg["inventory.priority_weights"]
+    return pd.DataFrame([{
+        "grade_adjusted": bool(cfg["criteria.grade_adjusted"]),
+        "step_m": float(cfg["profile.step_m"]),
+        "band_minor_kmh": float(bands[0]), "band_severe_kmh": float(bands[1]),
+        "w_shortfall": float(w["shortfall"]), "w_speed": float(w["speed"]), "w_exposure": float(w["exposure"]),
+        "aadt_ref": float(cfg["inventory.aadt_ref"]),
+    }])
+
+
+def evaluate(roads: pd.DataFrame, profiles: pd.DataFrame, curves: pd.DataFrame, keypoints: pd.DataFrame,
+             cset: CriteriaSet, cfg: Config) -> Evaluation:
+    """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the
+    columns each table needs)."""
+    set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
+    con = duckdb.connect()
+    try:
+        tables = {"roads": roads, "profiles": profiles, "keypoints": keypoints, "curves": curves, "cset": set_row,
+                  "cspeeds": cset.table, "params": params_table(cfg)}
+        for name, frame in tables.items():
+            con.register(name, frame)
+        for name in ("criteria_macros", "evaluate", "inventory"):
+            con.sql(sql_text(name))
+        curve_eval = con.sql("SELECT * FROM curve_eval ORDER BY road_id, curve_no").df()
+        inventory = con.sql("SELECT * FROM inventory").df()
+        summary = con.sql(sql_text("summary")).df()
+    finally:
+        con.close()
+    return Evaluation(curves=curve_eval, inventory=inventory, summary=summary)

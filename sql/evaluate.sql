@@ -1,0 +1,108 @@
+-- Judge every station (both directions) and every curve against the criteria set.
+-- Inputs (registered by pipeline/evaluate.py):
+--   roads(road_id, name, road_class, aadt, speed_kmh, speed_basis, length_m, status)
+--   profiles(road_id, chainage_m, grade_pct, sight_fwd_m, sight_back_m, limit_fwd, limit_back,
+--            curve_fwd, curve_back)        one row per station (profiles.parquet)
+--   keypoints(road_id, chainage_m, direction, sight_m, limit_kind, curve_no, grade)
+--       each curve seen from its PVC looking ahead and from its PVT looking back
+--   curves(road_id, curve_no, kind, pvc_m, pvt_m, a_pct, length_m, k, ...)
+--   cset      the selected criteria set (one row) with length_to_m and speed_to_kmh
+--   cspeeds   its table of speeds (speed, ssd_design, crest_k, sag_k)
+--   params    one row: grade_adjusted (bool), step_m
+-- Rules:
+--   required SSD: at a tabulated speed the table's design SSD; between rows the calculated
+--   SSD rounded up to the set's step. With grade_adjusted, the calculated SSD on the grade of
+--   the station in the direction of travel, rounded up (the tables are for level roads).
+--   A station is deficient where its sight distance is limited by a curve (line of sight or
+--   headlight) and falls below the required SSD.
+
+-- one row per station and direction of travel ('increasing' / 'decreasing' chainage), grade
+-- in the direction of travel (fraction), plus the curves' key points
+CREATE OR REPLACE TEMP VIEW stations AS
+SELECT road_id, chainage_m, 'increasing' AS direction, sight_fwd_m AS sight_m, limit_fwd AS limit_kind,
+       curve_fwd AS curve_no, grade_pct / 100.0 AS grade, false AS is_key
+FROM profiles
+UNION ALL
+SELECT road_id, chainage_m, 'decreasing', sight_back_m, limit_back, curve_back, -grade_pct / 100.0, false
+FROM profiles
+UNION ALL
+SELECT road_id, chainage_m, direction, sight_m, limit_kind, curve_no, grade, true
+FROM keypoints;
+
+CREATE OR REPLACE TEMP VIEW road_req AS
+SELECT r.*,
+       r.speed_kmh / c.speed_to_kmh AS v_set,
+       coalesce(t.ssd_design,
+                round_up(ssd_level(r.speed_kmh / c.speed_to_kmh, c.reaction_time_s, c.deceleration,
+                                   c.speed_coef, c.braking_coef), c.rounding_step)) AS ssd_level_design,
+       t.crest_k AS crest_k_table, t.sag_k AS sag_k_table
+FROM roads r
+CROSS JOIN cset c
+LEFT JOIN cspeeds t ON abs(t.speed - r.speed_kmh / c.speed_to_kmh) < 1e-6
+WHERE r.status = 'evaluated';
+
+CREATE OR REPLACE TEMP VIEW station_eval AS
+SELECT s.road_id, s.chainage_m, s.direction, s.sight_m, s.limit_kind, s.curve_no, s.grade, s.is_key,
+       rr.speed_kmh,
+       CASE WHEN p.grade_adjusted THEN
+                round_up(ssd_on_grade(rr.v_set, c.reaction_time_s, c.deceleration, s.grade, c.gravity,
+                                      c.speed_coef, c.grade_coef), c.rounding_step) * c.length_to_m
+            ELSE rr.ssd_level_design * c.length_to_m END AS ssd_required_m,
+       -- speed whose calculated SSD this sight distance meets (set's formula, same grade rule)
+       speed_for_sight(s.sight_m / c.length_to_m, c.speed_coef * c.reaction_time_s,
+                       CASE WHEN p.grade_adjusted
+                            THEN 1.0 / (c.grade_coef * (c.deceleration / c.gravity + s.grade))
+                            ELSE c.braking_coef / c.deceleration END) * c.speed_to_kmh
+           AS supported_speed_kmh
+FROM stations s
+JOIN road_req rr USING (road_id)
+CROSS JOIN cset c
+CROSS JOIN params p
+WHERE s.sight_m IS NOT NULL AND NOT isnan(s.sight_m);
+
+CREATE OR REPLACE TEMP VIEW station_verdict AS
+SELECT *,
+       (limit_kind IN ('line of sight', 'headlight') AND sight_m < ssd_required_m - 1e-9) AS short
+FROM station_eval;
+
+-- one row per curve: its available sight distance (smallest over the stations whose sight it
+-- limits, in either direction; where it limits none, the smallest over its own span), the
+-- requirement, the verdict, the speed it supports and the K check
+CREATE OR REPLACE TEMP VIEW curve_eval AS
+WITH limited AS (
+    SELECT road_id, curve_no,
+           min(sight_m) AS sight_min_m,
+           min(sight_m) FILTER (WHERE direction = 'increasing') AS sight_increasing_m,
+           min(sight_m) FILTER (WHERE direction = 'decreasing') AS sight_decreasing_m,
+           max(ssd_required_m) AS ssd_required_m,
+           bool_or(short) AS deficient,
+           arg_min(supported_speed_kmh, sight_m - ssd_required_m) AS supported_speed_kmh
+    FROM station_verdict
+    WHERE curve_no > 0
+    GROUP BY road_id, curve_no
+), span AS (
+    SELECT c.road_id, c.curve_no, min(s.sight_m) AS sight_span_m
+    FROM curves c
+    JOIN station_verdict s ON s.road_id = c.road_id AND NOT s.is_key
+         AND s.chainage_m BETWEEN c.pvc_m AND c.pvt_m
+    GROUP BY c.road_id, c.curve_no
+)
+SELECT c.*,
+       coalesce(l.sight_min_m, sp.sight_span_m) AS sight_available_m,
+       l.sight_increasing_m, l.sight_decreasing_m,
+       coalesce(l.ssd_required_m, rr.ssd_level_design * cs.length_to_m) AS ssd_required_m,
+       rr.speed_kmh,
+       coalesce(l.deficient, false) AS deficient,
+       CASE WHEN l.curve_no IS NULL THEN 'none within the look-ahead' ELSE 'this curve' END AS sight_limited_by,
+       l.supported_speed_kmh,  -- empty where the curve limits no sight distance
+       CASE c.kind
+            WHEN 'crest' THEN coalesce(rr.crest_k_table,
+                 k_round(pow(rr.ssd_level_design, 2) / cs.crest_k_const))
+            ELSE coalesce(rr.sag_k_table,
+                 k_round(pow(rr.ssd_level_design, 2) / (cs.sag_k_const + cs.sag_k_per_s * rr.ssd_level_design)))
+       END * cs.length_to_m AS k_required
+FROM curves c
+JOIN road_req rr USING (road_id)
+CROSS JOIN cset cs
+LEFT JOIN limited l USING (road_id, curve_no)
+LEFT JOIN span sp USING (road_id, curve_no);

@@ -1,0 +1,106 @@
+"""The output contract (DESIGN.md): every file, its columns, and that GIS and spreadsheet
+readers take them (geopandas/pyogrio, openpyxl, pyarrow as references)."""
+
+from __future__ import annotations
+
+import json
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyogrio
+import pyproj
+import shapely
+
+CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
+                  "a_pct", "length_m", "k", "fit_rmse_m", "sight_available_m", "ssd_required_m", "speed_kmh",
+                  "deficient"]
+DEFICIENCY_CONTRACT = ["rank", "road_id", "curve_no", "kind", "direction", "from_m", "to_m", "speed_kmh",
+                       "supported_speed_kmh", "ssd_required_m", "sight_available_m", "shortfall_m", "k",
+                       "k_required", "aadt", "priority_score"]
+
+
+def test_every_output_is_written(demo_out):
+    for name in ("curves.csv", "deficiencies.csv", "deficiencies.xlsx", "audit.gpkg", "profiles.parquet",
+                 "run.json"):
+        assert (demo_out / name).is_file() and (demo_out / name).stat().st_size > 0, name
+
+
+def test_csv_columns_follow_the_contract(demo_out):
+    c = pd.read_csv(demo_out / "curves.csv")
+    assert list(c.columns[: len(CURVE_CONTRACT)]) == CURVE_CONTRACT
+    assert set(c["deficient"].astype(str).str.lower()) <= {"true", "false"}
+    d = pd.read_csv(demo_out / "deficiencies.csv")
+    assert list(d.columns[: len(DEFICIENCY_CONTRACT)]) == DEFICIENCY_CONTRACT
+    assert list(d["rank"]) == list(range(1, len(d) + 1))
+    assert np.all(np.diff(d["priority_score"]) <= 1e-9)  # rank 1 = highest score
+    assert (d["shortfall_m"] > 0).all()
+    np.testing.assert_allclose(d["shortfall_m"], d["ssd_required_m"] - d["sight_available_m"], atol=2e-3)
+    assert (d["from_m"] <= d["to_m"]).all()
+    assert set(d["direction"]) <= {"increasing", "decreasing"}
+    # every deficiency belongs to a curve judged deficient
+    bad = c[c["deficient"].astype(str).str.lower() == "true"][["road_id", "curve_no"]]
+    keys = set(map(tuple, bad.to_numpy()))
+    assert all((r, n) in keys for r, n in d[["road_id", "curve_no"]].dropna().to_numpy())
+
+
+def test_profiles_parquet_has_sight_both_ways(demo_out):
+    import pyarrow.parquet as pq
+
+    cols = pq.read_schema(demo_out / "profiles.parquet").names
+    for col in ("road_id", "chainage_m", "x", "y", "ground_z_m", "fitted_z_m", "grade_pct", "sight_fwd_m",
+                "sight_back_m"):
+        assert col in cols
+
+
+def test_geopackage_reads_back(demo_out, samples):
+    """pyogrio lists the three layers; geopandas reads them with the roads' CRS and one feature
+    per CSV row."""
+    layers = {name for name, _ in pyogrio.list_layers(demo_out / "audit.gpkg")}
+    assert {"roads", "curves", "deficiencies"} <= layers
+    src_crs = pyproj.CRS(gpd.read_file(samples["roads"], layer="roads").crs)
+    roads = gpd.read_file(demo_out / "audit.gpkg", layer="roads")
+    curves = gpd.read_file(demo_out / "audit.gpkg", layer="curves")
+    defs = gpd.read_file(demo_out / "audit.gpkg", layer="deficiencies")
+    assert len(roads) == len(gpd.read_file(samples["roads"], layer="roads"))
+    assert len(curves) == len(pd.read_csv(demo_out / "curves.csv"))
+    assert len(defs) == len(pd.read_csv(demo_out / "deficiencies.csv"))
+    for layer in (roads, curves, defs):
+        assert pyproj.CRS(layer.crs).equals(src_crs)
+
+
+def test_each_deficient_stretch_lies_on_its_road(demo_out):
+    """shapely reference: every stretch line is within 1 mm of its road's centreline, and its
+    length matches the chainage range (plus half a station each end, as drawn)."""
+    roads = gpd.read_file(demo_out / "audit.gpkg", layer="roads").set_index("road_id")
+    defs = gpd.read_file(demo_out / "audit.gpkg", layer="deficiencies")
+    run = json.loads((demo_out / "run.json").read_text())
+    step = run["config"]["profile"]["step_m"]
+    assert len(defs) > 0
+    for r in defs.itertuples():
+        road = roads.loc[r.road_id, "geometry"]
+        vertices = shapely.points(shapely.get_coordinates(r.geometry))
+        assert shapely.distance(vertices, road).max() < 1e-3
+        assert road.buffer(1e-3).covers(r.geometry)
+        expect = min(r.to_m + step / 2, road.length) - max(r.from_m - step / 2, 0.0)
+        assert abs(r.geometry.length - expect) < 0.05
+
+
+def test_workbook_reads_back(demo_out):
+    """openpyxl reference: the sheets exist, headers equal the CSV columns, the header row is
+    frozen."""
+    import openpyxl
+
+    wb = openpyxl.load_workbook(demo_out / "deficiencies.xlsx")
+    assert {"Summary", "Deficiencies", "Curves", "Roads", "Method"} <= set(wb.sheetnames)
+    ws = wb["Deficiencies"]
+    header = [c.value for c in ws[1]]
+    assert header == list(pd.read_csv(demo_out / "deficiencies.csv").columns)
+    assert ws.freeze_panes == "A2"
+    assert ws.max_row == len(pd.read_csv(demo_out / "deficiencies.csv")) + 1
+    header = [c.value for c in wb["Curves"][1]]
+    assert header == list(pd.read_csv(demo_out / "curves.csv").columns)
+    method = " ".join(str(c.value) for row in wb["Method"].iter_rows() for c in row if c.value)
+    assert "licensed engineer" in method and "AASHTO" in method
+    summary = " ".join(str(c.value) for row in wb["Summary"].iter_rows() for c in row if c.value)
+    assert "licensed engineer" in summary
