@@ -15,6 +15,8 @@ sharp for the road's speed. The ground model is then made from the design:
   digitised backwards; Hazelmoor Lane has no posted speed);
 - ``wendle_vale_ground_points.csv``: ``road_id, x, y, z`` sampled from the DEM
   every 2 m with up to 2 m of lateral scatter;
+- ``wendle_vale_structures.csv``: the district's bridge register (one bridge,
+  as a point with its length), to mask known structures explicitly;
 - ``wendle_vale_design.json``: the design itself (the truth the audit should
   recover), for the curious.
 
@@ -244,6 +246,11 @@ def build(out_dir: Path = HERE) -> dict:
             for (x, y), zz in zip(xy[ok], z[ok]):
                 rows.append(f"{r['road_id']},{x:.2f},{y:.2f},{zz:.3f}")
     (out_dir / "wendle_vale_ground_points.csv").write_text("road_id,x,y,z\n" + "\n".join(rows) + "\n")
+
+    bp = shapely.line_interpolate_point(lines[BRIDGE["road_id"]], BRIDGE["chainage_m"])
+    (out_dir / "wendle_vale_structures.csv").write_text(
+        "structure_id,name,x,y,length_m\n"
+        f"B-01,{BRIDGE['name']},{bp.x:.2f},{bp.y:.2f},{BRIDGE['width_m']:.0f}\n")
 
     (out_dir / "wendle_vale_design.json").write_text(json.dumps({
         "scenario": "Wendle Vale District (invented)", "crs": CRS, "roads": design,

@@ -906,9 +906,16 @@ def fit_profile(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, opts: di
     pieces = np.split(idx, breaks + 1)
     min_len = max(3, int(np.ceil(opts["min_tangent_m"] / step_m)))
     for piece in pieces:
-        if len(piece) < max(min_len, 3):
+        if len(piece) < 2:
             continue
-        al = fit_stretch(ch[piece], z[piece], step_m, opts, sigma=sigma)
+        if len(piece) < max(min_len, 3):
+            # too short for a PVI with tangents either side: one least-squares grade
+            xs, zs = ch[piece], z[piece]
+            b, a = np.polyfit(xs - xs[0], zs, 1) if np.ptp(xs) > 0 else (0.0, float(zs.mean()))
+            al = Alignment(x=np.array([xs[0], xs[-1]]), y=np.array([a, a + b * (xs[-1] - xs[0])]),
+                           L=np.zeros(2), sigma=sigma, n=len(piece))
+        else:
+            al = fit_stretch(ch[piece], z[piece], step_m, opts, sigma=sigma)
         stretches.append(al)
         span = (ch >= al.x[0]) & (ch <= al.x[-1])
         fitted[span] = al.z(ch[span])
@@ -918,14 +925,14 @@ def fit_profile(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, opts: di
 
 
 CURVE_COLUMNS = ["curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct", "a_pct",
-                 "length_m", "k", "fit_rmse_m", "turn_m", "turn_elev_m", "confidence", "flags"]
+                 "length_m", "k", "fit_rmse_m", "turn_m", "turn_elev_m", "confidence", "flags", "judged"]
 
 
 def empty_curves() -> pd.DataFrame:
     """A curve table with no rows but the right column types."""
     text = {"kind", "confidence", "flags"}
-    return pd.DataFrame({c: pd.Series(dtype="int64" if c == "curve_no" else (str if c in text else float))
-                         for c in CURVE_COLUMNS})
+    types = {"curve_no": "int64", "judged": bool}
+    return pd.DataFrame({c: pd.Series(dtype=types.get(c, str if c in text else float)) for c in CURVE_COLUMNS})
 
 
 def _curve_table(stretches, ch, z, fitted, opts) -> pd.DataFrame:
@@ -948,8 +955,12 @@ def _curve_table(stretches, ch, z, fitted, opts) -> pd.DataFrame:
             n_on = int(((ch >= pvc) & (ch <= pvt) & valid).sum())
             if n_on < 4:
                 flags.append("few samples on the curve")
+            judged = True
             if (zone & ~valid).any():
                 flags.append("curve cut by a data gap")
+                if (zone & ~valid).sum() > 0.5 * zone.sum():
+                    judged = False
+                    flags.append("curve zone mostly without usable ground data: no verdict")
             if pvc < al.x[0] + step or pvt > al.x[-1] - step:
                 flags.append("curve at the end of the data")
             if np.isfinite(rmse) and rmse > max(3 * al.sigma, 0.05):
@@ -987,6 +998,7 @@ def _curve_table(stretches, ch, z, fitted, opts) -> pd.DataFrame:
                 "turn_m": turn_m, "turn_elev_m": turn_z,
                 "confidence": "low" if low else ("medium" if flags else "high"),
                 "flags": "; ".join(dict.fromkeys(flags)),
+                "judged": judged,
             })
     if not rows:
         return empty_curves()

@@ -21,8 +21,8 @@ from . import __version__
 from .config import Config
 from .ingest import (DemGround, PointGround, Roads, file_sha256, is_ballpark, open_ground, read_dem_window,
                      read_roads, transformer)
-from .profile import (FILLED, FLAG_NAMES, MISSING, bilinear, locate_points, points_along, regularise, run_lengths,
-                      station_chainages)
+from .profile import (FILLED, FLAG_NAMES, MASKED, MISSING, bilinear, locate_points, points_along, regularise,
+                      run_lengths, station_chainages)
 
 from .export import CAUTION_TEXT as CAUTION
 
@@ -59,10 +59,11 @@ class RoadOutcome:
 class GroundSampler:
     """Ground elevation along one road at a time, from a DEM or from ground points."""
 
-    def __init__(self, ground: DemGround | PointGround, roads: Roads, cfg: Config):
+    def __init__(self, ground: DemGround | PointGround, roads: Roads, cfg: Config, structures=None):
         self.ground = ground
         self.roads = roads
         self.cfg = cfg
+        self.structures = structures
         self._tr: dict[str, object] = {}
         self.points_dropped = 0
         self.points_used = 0
@@ -81,12 +82,21 @@ class GroundSampler:
                 )
         return self._tr[key]
 
+    def structure_ranges(self, row, line) -> list:
+        if self.structures is None:
+            return []
+        from .ingest import structure_ranges
+
+        return structure_ranges(self.structures, line, self.roads.work_crs[row["work_key"]], row["road_id"],
+                                row["source_id"], self.cfg)
+
     def _probe(self, key: str):
         line = self.roads.table.loc[self.roads.table["work_key"] == key, "geometry"].dropna().iloc[0]
         x, y = points_along(line, np.array([0.0]))
         return x, y
 
     def sample(self, line, key: str, road_id: str, stations: np.ndarray) -> tuple[np.ndarray, np.ndarray, list]:
+        # (road_id is the id as in the source files: ground points refer to it)
         """``(z_m, flag, notes)`` at ``stations`` (chainage m)."""
         step, max_gap = self.cfg["profile.step_m"], self.cfg["profile.max_gap_m"]
         notes: list = []
@@ -134,13 +144,27 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
         return out.skip(row["skip_reason"])
     line = row["geometry"]
     stations = station_chainages(row["length_m"], cfg["profile.step_m"])
-    z, flag, notes = sampler.sample(line, row["work_key"], row["road_id"], stations)
+    z, flag, notes = sampler.sample(line, row["work_key"], row["source_id"], stations)
     out.notes.extend(notes)
     have = np.isfinite(z)
     if not have.any():
         return out.skip("no ground data along the road (off the DEM, all nodata, or no ground points)")
     if have.sum() < 3:
         return out.skip("fewer than 3 stations with ground data")
+    if not have.all():
+        out.notes.append(("road partly without ground data", None, None,
+                          f"ground data cover {100 * have.mean():.0f} % of the road; evaluated over that part only"))
+    # artefacts: spikes, pits, bridge or culvert dips, humps, known structures
+    from .alignment import noise_sigma
+    from .artefacts import detect, implausible_grades
+
+    known = sampler.structure_ranges(row, line)
+    mask, art_notes = detect(stations, z, cfg["profile.step_m"], noise_sigma(z), artefact_options(cfg), known)
+    out.notes.extend(art_notes)
+    flag = np.where(mask & (flag != MISSING), MASKED, flag).astype(np.int8)
+    reason = implausible_grades(stations, np.where(mask, np.nan, z), cfg["artefacts.max_road_grade_pct"])
+    if reason:
+        return out.skip(reason)
     missing = ~have
     if missing.any():
         step = cfg["profile.step_m"]
@@ -172,13 +196,18 @@ def road_alignment(out: RoadOutcome, cfg: Config) -> list:
     from .alignment import fit_profile
 
     prof = out.profile
-    stretches, curves, fitted, grade = fit_profile(prof["chainage_m"].to_numpy(), prof["ground_z_m"].to_numpy(),
+    usable = np.where(prof["ground_flag"].to_numpy() == "masked", np.nan, prof["ground_z_m"].to_numpy())
+    stretches, curves, fitted, grade = fit_profile(prof["chainage_m"].to_numpy(), usable,
                                                    cfg["profile.step_m"], alignment_options(cfg))
     prof["fitted_z_m"] = fitted
     prof["grade_pct"] = grade * 100.0
     curves.insert(0, "road_id", out.road_id)
     out.curves = curves
     return stretches
+
+
+def artefact_options(cfg: Config) -> dict:
+    return {k: cfg[f"artefacts.{k}"] for k in ("spike_m", "max_grade_pct", "min_k", "max_width_m")}
 
 
 def alignment_options(cfg: Config) -> dict:
@@ -209,7 +238,7 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
         prof[f"curve_{name}"] = res[f"curve_{name}"]
         prof[f"limit_at_{name}_m"] = res[f"limit_at_{name}_m"]
     if cfg["sight.ground_diagnostic"]:
-        z = prof["ground_z_m"].to_numpy()
+        z = np.where(prof["ground_flag"].to_numpy() == "masked", np.nan, prof["ground_z_m"].to_numpy())
         ground = sight_both_ways(ch, lambda x: np.interp(x, ch, z, left=np.nan, right=np.nan), rules, fine)
         prof["ground_sight_fwd_m"] = ground["sight_fwd_m"]
         prof["ground_sight_back_m"] = ground["sight_back_m"]
@@ -354,8 +383,10 @@ def empty_profiles() -> pd.DataFrame:
 
 def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
                 progress: Progress | None = None) -> NetworkResult:
-    """Ingest, the per-road stages and the evaluation, for a whole network."""
+    """Ingest, the per-road stages and the evaluation, for a whole network. Known structures
+    come from ``structures.file`` in the config (or ``--structures``)."""
     from .criteria import get_set
+    from .ingest import read_structures
     from .evaluate import evaluate
 
     progress = progress or Progress()
@@ -366,12 +397,13 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
     with progress.stage("reading roads and ground") as tick:
         roads = read_roads(roads_path, cfg)
         ground = open_ground(ground_path, cfg, roads)
+        structures = read_structures(cfg["structures.file"], cfg, roads) if cfg["structures.file"] else None
         tick()
     table = roads.table
     table["speed_kmh"], table["speed_basis"], table["speed_reason"] = resolve_speeds(table, cfg)
     timings["ingest"] = time.perf_counter() - t0
 
-    sampler = GroundSampler(ground, roads, cfg)
+    sampler = GroundSampler(ground, roads, cfg, structures)
     back = {key: (None if crs is roads.source_crs else transformer(crs, roads.source_crs))
             for key, crs in roads.work_crs.items()}
     outcomes: list[RoadOutcome] = []

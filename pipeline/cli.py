@@ -30,6 +30,7 @@ RUN_FLAGS = [
     ("--elevation-unit", "ground.elevation_unit", str, "UNIT", "ground elevation unit: m, ft or us_ft [m]"),
     ("--step-m", "profile.step_m", float, "M", "station spacing along the road, metres [5]"),
     ("--criteria", "criteria.set", str, "NAME", "criteria set to judge against [aashto-2018-metric]"),
+    ("--structures", "structures.file", str, "PATH", "known bridges and culverts to mask (points or lines)"),
 ]
 
 
@@ -202,7 +203,8 @@ def main(argv: list[str] | None = None) -> int:
             from .resources import sample_paths
 
             paths = sample_paths()
-            return _run(args, str(paths["roads"]), str(paths["dem"]), {}, None)
+            return _run(args, str(paths["roads"]), str(paths["dem"]), {"structures.file": str(paths["structures"])},
+                        None)
     except InputError as err:
         print(f"sightaudit: error: {err}", file=sys.stderr)
         return 2

@@ -51,6 +51,20 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "bin_m": (10.0, "the number and rough place of PVIs are found on means over bins this long (m)"),
         "noise_floor_m": (0.002, "ground noise is taken as at least this when estimating it from the data (m)"),
     },
+    "artefacts": {
+        "spike_m": (0.5, "a sample this far from what its neighbours imply is a spike or pit, masked (m)"),
+        "max_grade_pct": (20.0, "grades steeper than this between stations mark a bridge dip or hump (%)"),
+        "min_k": (1.0, "curvature sharper than a vertical curve of this K marks a dip or hump (m per %)"),
+        "max_width_m": (150.0, "dips and humps wider than this are not masked (m)"),
+        "max_road_grade_pct": (25.0, "a road with more than 5 % of its length steeper than this is skipped (%)"),
+    },
+    "structures": {
+        "file": ("", "known bridges and culverts (points or lines, CSV or GPKG) whose span is masked"),
+        "layer": ("", "GeoPackage layer of the structures; empty = the only layer"),
+        "buffer_m": (10.0, "masked beyond each end of a known structure (m)"),
+        "default_length_m": (30.0, "length masked around a structure given as a point (m)"),
+        "max_offset_m": (25.0, "a structure further than this from a road's centreline is not on that road (m)"),
+    },
     "criteria": {
         "set": ("aashto-2018-metric", "criteria set to judge against (sightaudit criteria lists them)"),
         "grade_adjusted": (False, "required SSD on the grade of each station rather than level (as the K tables assume)"),

@@ -72,8 +72,9 @@ def write_profiles(path: Path, profiles: pd.DataFrame) -> None:
 CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
                   "a_pct", "length_m", "k", "fit_rmse_m", "sight_available_m", "ssd_required_m", "speed_kmh",
                   "deficient"]
-CURVE_EXTRA = ["supported_speed_kmh", "k_required", "k_below_table", "sight_increasing_m", "sight_decreasing_m",
-               "sight_formula_m", "sight_limited_by", "turn_m", "turn_elev_m", "confidence", "flags"]
+CURVE_EXTRA = ["judged", "supported_speed_kmh", "k_required", "k_below_table", "sight_increasing_m",
+               "sight_decreasing_m", "sight_formula_m", "sight_limited_by", "turn_m", "turn_elev_m", "confidence",
+               "flags"]
 DEFICIENCY_CONTRACT = ["rank", "road_id", "curve_no", "kind", "direction", "from_m", "to_m", "speed_kmh",
                        "supported_speed_kmh", "ssd_required_m", "sight_available_m", "shortfall_m", "k",
                        "k_required", "aadt", "priority_score"]
@@ -100,6 +101,7 @@ COLUMN_NOTES = {
     "ssd_required_m": "stopping sight distance required at the road's speed by the criteria set (m)",
     "speed_kmh": "speed the road is judged at (km/h)",
     "deficient": "true where the available sight distance is below the required SSD",
+    "judged": "false where the curve's zone is mostly without usable ground data: no verdict given",
     "supported_speed_kmh": "highest speed whose SSD the available sight distance meets (km/h)",
     "k_required": "K the criteria set tabulates for the road's speed (m per %)",
     "k_below_table": "true where K is below the table value (a short curve may still give enough sight)",

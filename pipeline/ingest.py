@@ -111,9 +111,13 @@ def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "
         except pd.errors.EmptyDataError:
             raise InputError(f"{path}: {what} file has no rows; export the data again") from None
         frame.columns = [str(c).strip() for c in frame.columns]
+        if len(frame) == 0:
+            raise InputError(f"{path}: {what} file has a header but no rows; export the data again")
         if wkt_column and wkt_column in frame.columns:
-            geoms = shapely.from_wkt(frame[wkt_column].to_numpy(dtype=object), on_invalid="ignore")
-            bad = np.flatnonzero(pd.isna(geoms) & frame[wkt_column].notna().to_numpy())
+            text = np.array([v if isinstance(v, str) and v.strip() else None for v in frame[wkt_column]],
+                            dtype=object)
+            geoms = shapely.from_wkt(text, on_invalid="ignore")
+            bad = np.flatnonzero(pd.isna(geoms) & np.array([t is not None for t in text]))
             if len(bad):
                 raise InputError(
                     f"{path}: row {bad[0] + 2}, column {wkt_column}: not valid WKT; fix or remove the row"
@@ -271,6 +275,28 @@ def merge_parts(geom, tolerance_m: float) -> tuple[object | None, str | None]:
     return shapely.linestrings(chain[:, :2]), None
 
 
+def unique_ids(ids: np.ndarray) -> tuple[np.ndarray, list[tuple[str, list[str]]]]:
+    """Road ids made unique: the first of a duplicated id keeps it, later ones get ``~2``,
+    ``~3`` ... (both roads are evaluated, apart). Returns the ids and the renamings."""
+    seen: dict[str, int] = {}
+    out = ids.copy()
+    renamed: dict[str, list[str]] = {}
+    taken = set(ids)
+    for i, v in enumerate(ids):
+        if v in seen:
+            seen[v] += 1
+            new = f"{v}~{seen[v]}"
+            while new in taken:
+                seen[v] += 1
+                new = f"{v}~{seen[v]}"
+            taken.add(new)
+            out[i] = new
+            renamed.setdefault(v, []).append(new)
+        else:
+            seen[v] = 1
+    return out, list(renamed.items())
+
+
 def read_roads(path: str | Path, cfg: Config) -> Roads:
     """Read the centrelines, merge multi-part lines, project to a metric CRS."""
     path = check_file(path, "roads")
@@ -300,6 +326,8 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
     missing = [i for i, v in enumerate(ids) if v is None or v == ""]
     if missing:
         raise InputError(f"{path}: row {missing[0] + 2}, column {id_col}: empty road identifier; fill it in")
+    source_ids = ids.copy()
+    ids, duplicated = unique_ids(ids)
 
     def optional_numeric(column: str) -> np.ndarray:
         if column and column in frame.columns:
@@ -326,7 +354,11 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
     if crs.is_geographic and present.any():
         cent = shapely.centroid(raw[present])
         keys[present] = [working_crs_key(crs, a, b) for a, b in zip(shapely.get_x(cent), shapely.get_y(cent))]
+    table["source_id"] = source_ids
     roads = Roads(path=path, table=table, source_crs=crs)
+    for orig, renamed in duplicated:
+        roads.notes.append(f"road id {orig!r} appears more than once; the later copies are kept apart as "
+                           f"{', '.join(repr(r) for r in renamed)}")
     lines = np.full(len(table), None, dtype=object)
     src_lines = np.full(len(table), None, dtype=object)
     reasons = np.full(len(table), None, dtype=object)
@@ -505,3 +537,60 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
     by_road = {k: g.drop(columns="road_id").reset_index(drop=True) for k, g in out.groupby("road_id", sort=False)}
     return PointGround(path=path, crs=crs, by_road=by_road, rows=len(out), mode=mode)
 
+
+
+# ----------------------------------------------------------------- structures
+@dataclass
+class Structures:
+    """Known bridges and culverts: geometries (points or lines) in their CRS, an optional road
+    id each, an optional length and a label."""
+
+    path: Path
+    crs: pyproj.CRS
+    geometry: np.ndarray
+    road_id: np.ndarray
+    length_m: np.ndarray
+    label: np.ndarray
+
+
+def read_structures(path: str | Path, cfg: Config, roads: Roads) -> Structures:
+    path = check_file(path, "structures")
+    frame, crs = read_table(path, what="structures", layer=cfg["structures.layer"],
+                            layer_setting="structures.layer", wkt_column="wkt")
+    if len(frame) == 0:
+        raise InputError(f"{path}: no structures in the file; remove --structures or fill it in")
+    if "geometry" in frame.columns:
+        geom = frame["geometry"].to_numpy(dtype=object)
+    elif {"x", "y"} <= set(frame.columns):
+        geom = shapely.points(numeric_column(frame, "x", path), numeric_column(frame, "y", path))
+    else:
+        raise InputError(f"{path}: structures need a geometry, a 'wkt' column or 'x' and 'y' columns")
+    if crs is None:
+        crs = roads.source_crs
+        roads.notes.append(f"{path.name}: no CRS stated for structures; taken as the roads' CRS")
+    id_col = cfg["roads.id_column"]
+    rid = id_strings(frame[id_col]) if id_col in frame.columns else np.full(len(frame), None, dtype=object)
+    length = numeric_column(frame, "length_m", path) if "length_m" in frame.columns else np.full(len(frame), np.nan)
+    label_col = next((c for c in ("name", "label", "structure") if c in frame.columns), None)
+    label = (frame[label_col].fillna("structure").astype(str).to_numpy(dtype=object) if label_col
+             else np.array([f"structure {i + 1}" for i in range(len(frame))], dtype=object))
+    return Structures(path=path, crs=crs, geometry=geom, road_id=rid, length_m=length, label=label)
+
+
+def structure_ranges(st: Structures, line, work_crs: pyproj.CRS, road_id: str, source_id: str,
+                     cfg: Config) -> list[tuple[float, float, str]]:
+    """Chainage ranges (m) of the known structures on one road, with their labels."""
+    tr = transformer(st.crs, work_crs)
+    geoms = _apply(st.geometry, tr, False)
+    near = shapely.distance(geoms, line) <= cfg["structures.max_offset_m"]
+    mine = np.array([r is None or r in (road_id, source_id) for r in st.road_id])
+    out = []
+    buf, default = cfg["structures.buffer_m"], cfg["structures.default_length_m"]
+    for g, length, label in zip(geoms[near & mine], st.length_m[near & mine], st.label[near & mine]):
+        c = shapely.line_locate_point(line, shapely.points(shapely.get_coordinates(g)))
+        lo, hi = float(np.min(c)), float(np.max(c))
+        if hi - lo < 1e-6:
+            half = (length if np.isfinite(length) else default) / 2
+            lo, hi = lo - half, hi + half
+        out.append((lo - buf, hi + buf, str(label)))
+    return out

@@ -22,9 +22,9 @@ from __future__ import annotations
 import numpy as np
 import shapely
 
-# ground_flag values, in profiles.parquet as text
-MEASURED, FILLED, MISSING = 0, 1, 2
-FLAG_NAMES = np.array(["measured", "filled", "missing"], dtype=object)
+# ground_flag values, in profiles.parquet as text ("masked": an artefact, see pipeline.artefacts)
+MEASURED, FILLED, MISSING, MASKED = 0, 1, 2, 3
+FLAG_NAMES = np.array(["measured", "filled", "missing", "masked"], dtype=object)
 
 
 def station_chainages(length_m: float, step_m: float) -> np.ndarray:

@@ -31,4 +31,5 @@ def sample_paths() -> dict[str, Path]:
         "roads": d / "wendle_vale_roads.gpkg",
         "dem": d / "wendle_vale_dem.tif",
         "points": d / "wendle_vale_ground_points.csv",
+        "structures": d / "wendle_vale_structures.csv",
     }

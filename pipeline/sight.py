@@ -91,7 +91,8 @@ def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: Sight
     r = rows[has]
     k = hidden.argmax(axis=1)[has]
     f1, f0 = f[r, k], f[r, k - 1]
-    los[r] = d[k - 1] + np.clip(f0 / (f0 - f1), 0.0, 1.0) * h
+    with np.errstate(invalid="ignore", divide="ignore"):
+        los[r] = d[k - 1] + np.nan_to_num(np.clip(f0 / (f0 - f1), 0.0, 1.0), nan=1.0) * h
     masked = np.where(np.arange(W)[None, :] < k[:, None], s_road[r], -np.inf)
     los_k[r] = masked.argmax(axis=1)  # the blocking point: steepest road point before
 
@@ -111,7 +112,10 @@ def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: Sight
 
 
 def _govern(los, beam, los_k, beam_k, avail, lookahead):
-    """Governing distance, limit code and offset index of the limiting point."""
+    """Governing distance, limit code and offset index of the limiting point. A limit found
+    beyond the look-ahead (the last sample may lie past it) does not count."""
+    los = np.where(los > lookahead, np.inf, los)
+    beam = np.where(beam > lookahead, np.inf, beam)
     lim = np.where(los <= beam, LOS, BEAM)
     sd = np.minimum(los, beam)
     free = ~np.isfinite(sd)

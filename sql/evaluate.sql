@@ -14,7 +14,8 @@
 --   SSD rounded up to the set's step. With grade_adjusted, the calculated SSD on the grade of
 --   the station in the direction of travel, rounded up (the tables are for level roads).
 --   A station is deficient where its sight distance is limited by a curve (line of sight or
---   headlight) and falls below the required SSD.
+--   headlight) and falls below the required SSD. A curve whose zone is mostly without usable
+--   ground data (judged = false) gets no verdict: its stations are never deficient.
 
 -- one row per station and direction of travel ('increasing' / 'decreasing' chainage), grade
 -- in the direction of travel (fraction), plus the curves' key points
@@ -61,9 +62,11 @@ CROSS JOIN params p
 WHERE s.sight_m IS NOT NULL AND NOT isnan(s.sight_m);
 
 CREATE OR REPLACE TEMP VIEW station_verdict AS
-SELECT *,
-       (limit_kind IN ('line of sight', 'headlight') AND sight_m < ssd_required_m - 1e-9) AS short
-FROM station_eval;
+SELECT e.*,
+       (e.limit_kind IN ('line of sight', 'headlight') AND e.sight_m < e.ssd_required_m - 1e-9
+        AND coalesce(c.judged, true)) AS short
+FROM station_eval e
+LEFT JOIN curves c ON c.road_id = e.road_id AND c.curve_no = e.curve_no;
 
 -- one row per curve: its available sight distance (smallest over the stations whose sight it
 -- limits, in either direction; where it limits none, the smallest over its own span), the
