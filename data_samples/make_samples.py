@@ -17,6 +17,9 @@ sharp for the road's speed. The ground model is then made from the design:
   every 2 m with up to 2 m of lateral scatter;
 - ``wendle_vale_structures.csv``: the district's bridge register (one bridge,
   as a point with its length), to mask known structures explicitly;
+- ``wendle_vale_junctions.csv``: private accesses (farm and forestry entrances)
+  beside the roads; junctions between the district's own roads are found from
+  the network itself;
 - ``wendle_vale_design.json``: the design itself (the truth the audit should
   recover), for the curious.
 
@@ -101,6 +104,9 @@ ROADS = [
 ]
 BRIDGE = dict(road_id="WV-03", chainage_m=5600.0, depth_m=6.0, width_m=40.0, name="Coldwater Brook bridge")
 VOID = dict(road_id="WV-10", chainage_m=1015.0, along_m=30.0, across_m=40.0)
+# private accesses: (road, chainage, side offset m, name)
+ACCESSES = [("WV-09", 1320.0, 9.0, "Ivywell Farm access"), ("WV-06", 2400.0, -8.0, "Fallow Wood forestry gate"),
+            ("WV-03", 800.0, 10.0, "Coldwater Mill entrance")]
 
 
 def build(out_dir: Path = HERE) -> dict:
@@ -251,6 +257,14 @@ def build(out_dir: Path = HERE) -> dict:
     (out_dir / "wendle_vale_structures.csv").write_text(
         "structure_id,name,x,y,length_m\n"
         f"B-01,{BRIDGE['name']},{bp.x:.2f},{bp.y:.2f},{BRIDGE['width_m']:.0f}\n")
+
+    rows = ["name,kind,x,y"]
+    for rid, c, off, name in ACCESSES:
+        p = shapely.line_interpolate_point(lines[rid], c)
+        q = shapely.line_interpolate_point(lines[rid], c + 1.0)
+        nx, ny = -(q.y - p.y), q.x - p.x
+        rows.append(f"{name},private access,{p.x + off * nx:.2f},{p.y + off * ny:.2f}")
+    (out_dir / "wendle_vale_junctions.csv").write_text("\n".join(rows) + "\n")
 
     (out_dir / "wendle_vale_design.json").write_text(json.dumps({
         "scenario": "Wendle Vale District (invented)", "crs": CRS, "roads": design,

@@ -49,6 +49,8 @@ class RoadOutcome:
     profile: pd.DataFrame | None = None
     curves: pd.DataFrame | None = None
     keypoints: pd.DataFrame | None = None
+    hcurves: pd.DataFrame | None = None
+    hazards: pd.DataFrame | None = None
     seconds: dict[str, float] = field(default_factory=dict)
 
     def skip(self, reason: str) -> "RoadOutcome":
@@ -59,11 +61,13 @@ class RoadOutcome:
 class GroundSampler:
     """Ground elevation along one road at a time, from a DEM or from ground points."""
 
-    def __init__(self, ground: DemGround | PointGround, roads: Roads, cfg: Config, structures=None):
+    def __init__(self, ground: DemGround | PointGround, roads: Roads, cfg: Config, structures=None,
+                 junctions=None):
         self.ground = ground
         self.roads = roads
         self.cfg = cfg
         self.structures = structures
+        self.junctions = junctions
         self._tr: dict[str, object] = {}
         self.points_dropped = 0
         self.points_used = 0
@@ -89,6 +93,16 @@ class GroundSampler:
 
         return structure_ranges(self.structures, line, self.roads.work_crs[row["work_key"]], row["road_id"],
                                 row["source_id"], self.cfg)
+
+    def junction_points(self, row) -> list:
+        """Junctions and accesses from the user's layer on this road: (chainage, label)."""
+        if self.junctions is None:
+            return []
+        from .ingest import feature_chainages
+
+        found = feature_chainages(self.junctions, row["geometry"], self.roads.work_crs[row["work_key"]],
+                                  row["road_id"], row["source_id"], self.cfg["junctions.max_offset_m"])
+        return [(lo, label) for lo, hi, _, label in found]
 
     def _probe(self, key: str):
         line = self.roads.table.loc[self.roads.table["work_key"] == key, "geometry"].dropna().iloc[0]
@@ -263,12 +277,18 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
     out.keypoints = pd.concat(rows, ignore_index=True) if rows else None
 
 
+PREDICTED = "predicted (FHWA-RD-99-171)"
+
+
 def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Speed each road is judged at (km/h), its basis, and a skip reason where there is none.
 
-    The speed column's value plus ``speed.margin_kmh``; where it is empty or not positive,
-    the default for the road's class (``speed.default_by_class``); otherwise the road is
-    skipped."""
+    With ``speed.source = "attribute"`` (default): the speed column's value plus
+    ``speed.margin_kmh``; where it is empty or not positive, the default for the road's class
+    (``speed.default_by_class``); else, with ``speed.predict_missing``, the predicted operating
+    speed (station by station; the road's figure is then the desired speed, the ceiling);
+    otherwise the road is skipped. With ``speed.source = "predicted"`` every road is judged at
+    predicted speeds."""
     raw = table["speed_raw"].to_numpy(dtype=float)
     margin = cfg["speed.margin_kmh"]
     defaults = cfg["speed.default_by_class"]
@@ -276,19 +296,88 @@ def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.nda
     basis = np.full(len(table), None, dtype=object)
     reason = np.full(len(table), None, dtype=object)
     for i, (v, cls) in enumerate(zip(raw, table["road_class"])):
-        if np.isfinite(v) and v > 0:
+        if cfg["speed.source"] == "predicted":
+            speed[i], basis[i] = cfg["speed.desired_kmh"], PREDICTED
+        elif np.isfinite(v) and v > 0:
             speed[i] = v + margin
             basis[i] = "attribute" if margin == 0 else f"attribute + {margin:g} km/h"
         elif cls is not None and cls in defaults:
             speed[i] = float(defaults[cls]) + margin
             basis[i] = f"class default ({cls})"
+        elif cfg["speed.predict_missing"]:
+            speed[i], basis[i] = cfg["speed.desired_kmh"], PREDICTED
         else:
             reason[i] = (f"no usable speed (column {cfg['roads.speed_column']!r} empty or not positive); "
-                         f"fill it in or set speed.default_by_class")
+                         f"fill it in, set speed.default_by_class, or allow speed.predict_missing")
     return speed, basis, reason
 
 
-def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source, rules) -> RoadOutcome:
+def road_plan(out: RoadOutcome, line, cfg: Config) -> None:
+    """Horizontal curves of the centreline, with the minimum-radius check (the plan stage)."""
+    from .plan import horizontal_curves
+
+    opts = {k: cfg[f"plan.{k}"] for k in ("smooth_m", "max_radius_m", "min_length_m", "min_deflection_deg")}
+    opts["step_m"] = min(cfg["profile.step_m"], 5.0)
+    hc = horizontal_curves(line, opts)
+    hc.insert(0, "road_id", out.road_id)
+    out.hcurves = hc
+
+
+def road_speeds(out: RoadOutcome, row: pd.Series, cfg: Config) -> None:
+    """Predicted operating speed at every station both ways, and the speed each station is
+    judged at (the road's speed, or the prediction where the road's basis is predicted)."""
+    from .speed import predict_v85
+
+    prof = out.profile
+    ch, g = prof["chainage_m"].to_numpy(), prof["grade_pct"].to_numpy()
+    vc = out.curves if out.curves is not None else pd.DataFrame()
+    desired = cfg["speed.desired_kmh"]
+    prof["v85_fwd_kmh"] = predict_v85(ch, g, vc, out.hcurves, desired, +1)
+    prof["v85_back_kmh"] = predict_v85(ch, g, vc, out.hcurves, desired, -1)
+    if row["speed_basis"] == PREDICTED:
+        prof["speed_fwd_kmh"] = prof["v85_fwd_kmh"]
+        prof["speed_back_kmh"] = prof["v85_back_kmh"]
+    else:
+        prof["speed_fwd_kmh"] = prof["speed_back_kmh"] = float(row["speed_kmh"])
+    kp = getattr(out, "keypoints", None)
+    if kp is not None and len(kp):
+        fwd = kp["direction"] == "increasing"
+        kp["speed_kmh"] = np.where(fwd, np.interp(kp["chainage_m"], ch, prof["speed_fwd_kmh"]),
+                                   np.interp(kp["chainage_m"], ch, prof["speed_back_kmh"]))
+
+
+def road_hazards(out: RoadOutcome, stretches: list, junctions: list, cset, cfg: Config) -> None:
+    """Hidden zone beyond every crest, both ways, at the required SSD for the speed judged at the
+    crest, and the hazards in it (horizontal curves beginning, junctions and accesses)."""
+    from .alignment import RoadProfile
+    from .hazards import hazards_in_zone, hidden_zone
+
+    rows = []
+    crests = out.curves[out.curves["kind"] == "crest"] if out.curves is not None and len(out.curves) else []
+    if len(crests) and stretches:
+        road = RoadProfile(stretches)
+        prof = out.profile
+        ch = prof["chainage_m"].to_numpy()
+        rules = cset.sight_rules()
+        for c in crests.itertuples():
+            i = int(np.clip(np.searchsorted(ch, c.pvi_m), 0, len(ch) - 1))
+            for direction, col in (("increasing", "speed_fwd_kmh"), ("decreasing", "speed_back_kmh")):
+                sign = 1 if direction == "increasing" else -1
+                v = float(prof[col].iloc[i])
+                ssd = float(cset.ssd_design(v / cset.speed_to_kmh)) * cset.length_to_m
+                zone = hidden_zone(road.z, c.pvi_m, c.pvt_m if sign > 0 else c.pvc_m, ssd, sign,
+                                   rules.eye_height_m, 0.0, cfg["sight.fine_step_m"], float(ch[-1]))
+                rows.append({"road_id": out.road_id, "curve_no": c.curve_no, "direction": direction}
+                            | hazards_in_zone(zone, sign, out.hcurves, junctions))
+    out.hazards = pd.DataFrame(rows, columns=HAZARD_COLUMNS)
+
+
+HAZARD_COLUMNS = ["road_id", "curve_no", "direction", "hidden_from_m", "hidden_to_m", "hidden_hazard",
+                  "hazard_chainage_m", "hazard_detail"]
+
+
+def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source, cset,
+                 junctions: list | None = None) -> RoadOutcome:
     """Every per-road stage for one road, timed stage by stage."""
     t0 = time.perf_counter()
     if not isinstance(row["skip_reason"], str) and isinstance(row.get("speed_reason"), str):
@@ -301,8 +390,15 @@ def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source,
     stretches = road_alignment(out, cfg)
     t2 = time.perf_counter()
     out.seconds["alignment"] = t2 - t1
-    road_sight(out, stretches, rules, cfg)
-    out.seconds["sight"] = time.perf_counter() - t2
+    road_plan(out, row["geometry"], cfg)
+    t3 = time.perf_counter()
+    out.seconds["plan"] = t3 - t2
+    road_sight(out, stretches, cset.sight_rules(), cfg)
+    t4 = time.perf_counter()
+    out.seconds["sight"] = t4 - t3
+    road_speeds(out, row, cfg)
+    road_hazards(out, stretches, (junctions or []) + sampler.junction_points(row), cset, cfg)
+    out.seconds["speed and hazards"] = time.perf_counter() - t4
     return out
 
 
@@ -337,6 +433,29 @@ class NetworkResult:
             return empty
         return pd.concat(frames, ignore_index=True)
 
+    def _gather(self, attr: str, columns: list[str]) -> pd.DataFrame:
+        frames = [getattr(o, attr) for o in self.outcomes if getattr(o, attr, None) is not None]
+        frames = [f for f in frames if len(f)]
+        if not frames:
+            return pd.DataFrame({c: pd.Series(dtype=object) for c in columns})
+        return pd.concat(frames, ignore_index=True)
+
+    @property
+    def hcurves(self) -> pd.DataFrame:
+        from .plan import HCURVE_COLUMNS
+
+        return self._gather("hcurves", ["road_id"] + HCURVE_COLUMNS)
+
+    @property
+    def hazards(self) -> pd.DataFrame:
+        frame = self._gather("hazards", HAZARD_COLUMNS)
+        for c in ("hidden_from_m", "hidden_to_m", "hazard_chainage_m"):
+            frame[c] = frame[c].astype(float)
+        frame["curve_no"] = frame["curve_no"].astype("int64")
+        for c in ("road_id", "direction", "hidden_hazard", "hazard_detail"):
+            frame[c] = frame[c].astype(str)
+        return frame
+
     @property
     def keypoints(self) -> pd.DataFrame:
         frames = [o.keypoints for o in self.outcomes if getattr(o, "keypoints", None) is not None]
@@ -344,7 +463,7 @@ class NetworkResult:
             return pd.DataFrame({"road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float),
                                  "direction": pd.Series(dtype=str), "sight_m": pd.Series(dtype=float),
                                  "limit_kind": pd.Series(dtype=str), "curve_no": pd.Series(dtype="int64"),
-                                 "grade": pd.Series(dtype=float)})
+                                 "grade": pd.Series(dtype=float), "speed_kmh": pd.Series(dtype=float)})
         return pd.concat(frames, ignore_index=True)
 
     def road_table(self) -> pd.DataFrame:
@@ -378,7 +497,23 @@ def empty_profiles() -> pd.DataFrame:
         "sight_fwd_m": pd.Series(dtype=float), "sight_back_m": pd.Series(dtype=float),
         "limit_fwd": pd.Series(dtype=str), "limit_back": pd.Series(dtype=str),
         "curve_fwd": pd.Series(dtype="int64"), "curve_back": pd.Series(dtype="int64"),
+        "speed_fwd_kmh": pd.Series(dtype=float), "speed_back_kmh": pd.Series(dtype=float),
     })
+
+
+def network_junction_points(roads: Roads, cfg: Config) -> dict[str, list]:
+    """Junctions where one road's end meets another road (per working CRS)."""
+    if not cfg["junctions.from_network"]:
+        return {}
+    from .hazards import network_junctions
+
+    t = roads.table
+    out: dict[str, list] = {}
+    for key in roads.work_crs:
+        sel = t[(t["work_key"] == key) & t["geometry"].notna()]
+        if len(sel) > 1:
+            out |= network_junctions(dict(zip(sel["road_id"], sel["geometry"])), cfg["junctions.snap_m"])
+    return out
 
 
 def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
@@ -386,30 +521,34 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
     """Ingest, the per-road stages and the evaluation, for a whole network. Known structures
     come from ``structures.file`` in the config (or ``--structures``)."""
     from .criteria import get_set
-    from .ingest import read_structures
+    from .ingest import read_features
     from .evaluate import evaluate
 
     progress = progress or Progress()
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     cset = get_set(cfg["criteria.set"], cfg["criteria.files"])
-    rules = cset.sight_rules()
     with progress.stage("reading roads and ground") as tick:
         roads = read_roads(roads_path, cfg)
         ground = open_ground(ground_path, cfg, roads)
-        structures = read_structures(cfg["structures.file"], cfg, roads) if cfg["structures.file"] else None
+        structures = (read_features(cfg["structures.file"], cfg, roads, "structures", cfg["structures.layer"])
+                      if cfg["structures.file"] else None)
+        junction_layer = (read_features(cfg["junctions.file"], cfg, roads, "junctions", cfg["junctions.layer"])
+                          if cfg["junctions.file"] else None)
         tick()
     table = roads.table
     table["speed_kmh"], table["speed_basis"], table["speed_reason"] = resolve_speeds(table, cfg)
     timings["ingest"] = time.perf_counter() - t0
 
-    sampler = GroundSampler(ground, roads, cfg, structures)
+    sampler = GroundSampler(ground, roads, cfg, structures, junction_layer)
+    net_junctions = network_junction_points(roads, cfg)
     back = {key: (None if crs is roads.source_crs else transformer(crs, roads.source_crs))
             for key, crs in roads.work_crs.items()}
     outcomes: list[RoadOutcome] = []
     with progress.stage("profiles, curves, sight", total=len(table)) as tick:
         for _, row in table.iterrows():
-            outcomes.append(process_road(row, sampler, cfg, back.get(row["work_key"]), rules))
+            outcomes.append(process_road(row, sampler, cfg, back.get(row["work_key"]), cset,
+                                         net_junctions.get(row["road_id"], [])))
             tick()
     for o in outcomes:
         for stage, secs in o.seconds.items():
@@ -430,11 +569,12 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
     with progress.stage("judging curves (DuckDB)") as tick:
         prof = result.profiles
         cols = ["road_id", "chainage_m", "grade_pct", "sight_fwd_m", "sight_back_m", "limit_fwd", "limit_back",
-                "curve_fwd", "curve_back"]
+                "curve_fwd", "curve_back", "speed_fwd_kmh", "speed_back_kmh"]
         for c in cols:
             if c not in prof:
                 prof[c] = empty_profiles()[c]
-        result.evaluation = evaluate(result.road_table(), prof[cols], result.curves, result.keypoints, cset, cfg)
+        result.evaluation = evaluate(result.road_table(), prof[cols], result.curves, result.keypoints,
+                                     result.hazards, cset, cfg)
         tick()
     timings["evaluate"] = time.perf_counter() - t0
     return result

@@ -31,6 +31,8 @@ RUN_FLAGS = [
     ("--step-m", "profile.step_m", float, "M", "station spacing along the road, metres [5]"),
     ("--criteria", "criteria.set", str, "NAME", "criteria set to judge against [aashto-2018-metric]"),
     ("--structures", "structures.file", str, "PATH", "known bridges and culverts to mask (points or lines)"),
+    ("--junctions", "junctions.file", str, "PATH", "junctions and accesses to look for beyond crests (points)"),
+    ("--speed-source", "speed.source", str, "SOURCE", "attribute (speed column) or predicted (FHWA-RD-99-171)"),
 ]
 
 
@@ -203,7 +205,8 @@ def main(argv: list[str] | None = None) -> int:
             from .resources import sample_paths
 
             paths = sample_paths()
-            return _run(args, str(paths["roads"]), str(paths["dem"]), {"structures.file": str(paths["structures"])},
+            return _run(args, str(paths["roads"]), str(paths["dem"]), {"structures.file": str(paths["structures"]),
+                                                                       "junctions.file": str(paths["junctions"])},
                         None)
     except InputError as err:
         print(f"sightaudit: error: {err}", file=sys.stderr)

@@ -71,8 +71,27 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "files": ([], "CSV files adding criteria sets of your own (sightaudit criteria --template)"),
     },
     "speed": {
-        "margin_kmh": (0.0, "added to every road's speed before judging (e.g. 10 to judge at posted + 10 km/h)"),
+        "source": ("attribute", "'attribute': judge at the roads' speed column; 'predicted': at the 85th-percentile "
+                                "speed predicted by FHWA-RD-99-171"),
+        "margin_kmh": (0.0, "added to every road's attribute speed before judging (e.g. 10 for posted + 10 km/h)"),
         "default_by_class": ({}, "speed (km/h) for roads of a class with no speed, e.g. { local = 60 }"),
+        "predict_missing": (True, "roads with no usable speed (and no class default) are judged at predicted speeds"),
+        "desired_kmh": (98.0, "drivers' desired speed on long tangents, the ceiling of predicted speeds (km/h)"),
+    },
+    "plan": {
+        "smooth_m": (50.0, "length over which the centreline's heading is smoothed against digitising noise (m)"),
+        "max_radius_m": (3000.0, "bends flatter than this radius are treated as tangent (m)"),
+        "min_length_m": (20.0, "shortest horizontal curve kept (m)"),
+        "min_deflection_deg": (3.0, "smallest turn kept as a horizontal curve (degrees)"),
+        "e_max_pct": (8.0, "maximum superelevation for the minimum-radius check (4, 6 or 8 %)"),
+        "lane_width_m": (3.6, "lane width: the sight line offset is measured from the inside lane's centre (m)"),
+    },
+    "junctions": {
+        "file": ("", "junctions and accesses (points, CSV or GPKG) checked for in the zones hidden by crests"),
+        "layer": ("", "GeoPackage layer of the junctions; empty = the only layer"),
+        "max_offset_m": (30.0, "a junction further than this from a road's centreline is not on that road (m)"),
+        "from_network": (True, "also take a junction wherever one road's end lies on another road"),
+        "snap_m": (5.0, "how close a road's end must come to another road to make a junction (m)"),
     },
     "sight": {
         "fine_step_m": (1.0, "spacing of the road samples a sight line is checked against (m)"),
@@ -83,6 +102,9 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "priority_weights": ({"shortfall": 1.0, "speed": 1.0, "exposure": 1.0},
                              "weights of shortfall, speed gap and traffic exposure in the priority score"),
         "aadt_ref": (20000.0, "AADT at which the exposure factor of the priority score reaches its maximum"),
+        "hazard_weight": (1.0, "points (x 100) added to the score of a stretch whose crest hides a hazard"),
+        "reconstruction_gap_kmh": (32.0, "speed gap above which reconstruction is hinted (TRB SR 214: 20 mph; from memory)"),
+        "reconstruction_aadt": (1500.0, "AADT above which reconstruction is hinted (TRB SR 214; from memory)"),
     },
 }
 
@@ -147,8 +169,12 @@ def _check_value(key: str, value: Any, source: str) -> None:
         if not all(isinstance(v, str) for v in value):
             bad("must be a list of file paths")
     elif key in ("profile.step_m", "sight.fine_step_m", "ground.max_offset_m", "profile.max_gap_m",
-                 "inventory.aadt_ref") and not value > 0:
+                 "inventory.aadt_ref", "speed.desired_kmh", "plan.smooth_m", "plan.max_radius_m") and not value > 0:
         bad("must be positive")
+    elif key == "speed.source" and value not in ("attribute", "predicted"):
+        bad("must be 'attribute' or 'predicted'")
+    elif key == "plan.e_max_pct" and not 0 <= value <= 20:
+        bad("must be between 0 and 20 (%)")
 
 
 class Config:

@@ -45,10 +45,12 @@ _NUMERIC_SET = SET_COLUMNS[5:-1]
 
 @dataclass(frozen=True)
 class CriteriaSet:
-    """One criteria set: its parameters (``params``, set units) and speed table."""
+    """One criteria set: its parameters (``params``, set units), speed table, and side
+    friction factors by speed (``friction``: speed, f_max) for the minimum-radius check."""
 
     params: dict
     table: pd.DataFrame
+    friction: pd.DataFrame = None
 
     @property
     def name(self) -> str:
@@ -189,7 +191,17 @@ def get_set(name: str, extra_files: list[str] | None = None) -> CriteriaSet:
                          f"(known: {', '.join(sets['name'])}; see sightaudit criteria)")
     row = sets[sets["name"] == name].iloc[0].to_dict()
     table = speeds[speeds["set_name"] == name].sort_values("speed").reset_index(drop=True)
-    return CriteriaSet(params=row, table=table)
+    fr = _read_friction(name)
+    if not len(fr):  # a user's set without its own friction table: AASHTO's in its units
+        base = "aashto-2018-metric" if row["units"] == "metric" else "aashto-2018-us"
+        fr = _read_friction(base)
+    return CriteriaSet(params=row, table=table, friction=fr)
+
+
+def _read_friction(name: str) -> pd.DataFrame:
+    path = sql_dir() / "criteria" / "side_friction.csv"
+    fr = _check(_read_csv(path, "side friction"), ["set_name", "speed", "f_max", "marks"], ["speed", "f_max"], path)
+    return fr[fr["set_name"] == name].sort_values("speed").reset_index(drop=True)
 
 
 def template() -> str:

@@ -35,17 +35,21 @@ def params_table(cfg: Config) -> pd.DataFrame:
         "band_minor_kmh": float(bands[0]), "band_severe_kmh": float(bands[1]),
         "w_shortfall": float(w["shortfall"]), "w_speed": float(w["speed"]), "w_exposure": float(w["exposure"]),
         "aadt_ref": float(cfg["inventory.aadt_ref"]),
+        "hazard_weight": float(cfg["inventory.hazard_weight"]),
+        "recon_gap_kmh": float(cfg["inventory.reconstruction_gap_kmh"]),
+        "recon_aadt": float(cfg["inventory.reconstruction_aadt"]),
     }])
 
 
 def evaluate(roads: pd.DataFrame, profiles: pd.DataFrame, curves: pd.DataFrame, keypoints: pd.DataFrame,
-             cset: CriteriaSet, cfg: Config) -> Evaluation:
+             hazards: pd.DataFrame, cset: CriteriaSet, cfg: Config) -> Evaluation:
     """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the
     columns each table needs)."""
     set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
     con = duckdb.connect()
     try:
-        tables = {"roads": roads, "profiles": profiles, "keypoints": keypoints, "curves": curves, "cset": set_row,
+        tables = {"roads": roads, "profiles": profiles, "keypoints": keypoints, "curves": curves,
+                  "hazards": hazards, "cset": set_row,
                   "cspeeds": cset.table, "params": params_table(cfg)}
         for name, frame in tables.items():
             con.register(name, frame)

@@ -78,9 +78,11 @@ CURVE_EXTRA = ["judged", "supported_speed_kmh", "k_required", "k_below_table", "
 DEFICIENCY_CONTRACT = ["rank", "road_id", "curve_no", "kind", "direction", "from_m", "to_m", "speed_kmh",
                        "supported_speed_kmh", "ssd_required_m", "sight_available_m", "shortfall_m", "k",
                        "k_required", "aadt", "priority_score"]
-DEFICIENCY_EXTRA = ["severity", "speed_gap_kmh", "stretch_length_m", "road_name", "road_class", "speed_basis",
-                    "a_pct", "curve_length_m", "pvi_m", "confidence", "limit_kind", "f_shortfall", "f_speed",
-                    "f_exposure"]
+DEFICIENCY_EXTRA = ["severity", "hidden_hazard", "hazard_chainage_m", "hazard_detail", "hidden_from_m",
+                    "hidden_to_m", "treatment_hint", "speed_gap_kmh", "stretch_length_m", "road_name", "road_class",
+                    "speed_basis", "a_pct", "curve_length_m", "pvi_m", "confidence", "limit_kind", "f_shortfall",
+                    "f_speed", "f_exposure"]
+HCURVE_EXTRA = ["speed_kmh", "r_min_m", "below_min_radius", "ssd_required_m", "hso_m", "hso_valid", "v85_kmh"]
 
 # what each column means, for the spreadsheet's header notes and the method sheet
 COLUMN_NOTES = {
@@ -131,6 +133,22 @@ COLUMN_NOTES = {
     "f_shortfall": "priority factor: shortfall / required SSD (0-1)",
     "f_speed": "priority factor: speed gap / 50 km/h (0-1)",
     "f_exposure": "priority factor: ln(1 + AADT) / ln(1 + reference AADT) (0-1)",
+    "hidden_hazard": "what the crest hides from a driver at the required SSD: none, horizontal curve, junction or both",
+    "hazard_chainage_m": "chainage of the first hidden hazard a driver meets (m)",
+    "hazard_detail": "the hidden hazards and where they are",
+    "hidden_from_m": "start of the road surface hidden beyond the crest at the required SSD (m)",
+    "hidden_to_m": "end of the hidden road surface (m)",
+    "treatment_hint": "first thought on treatment (TRB SR 214 3R guidance); for the engineer to decide",
+    "hcurve_no": "horizontal curve number along the road",
+    "start_m": "chainage where the horizontal curve begins (m)",
+    "end_m": "chainage where the horizontal curve ends (m)",
+    "radius_m": "radius of the least-squares circle through the curve (m)",
+    "deflection_deg": "change of heading through the curve (degrees)",
+    "r_min_m": "minimum radius for the speed: V^2 / (127 (e + f)) (m)",
+    "below_min_radius": "true where the radius is below the minimum for the speed",
+    "hso_m": "lateral clearance from the inside lane's centre needed for the required SSD (m), to verify in the field",
+    "hso_valid": "false where the required SSD is longer than the curve (the HSO formula then overstates)",
+    "v85_kmh": "predicted 85th-percentile car speed on the curve (FHWA-RD-99-171) (km/h)",
     "status": "evaluated, or skipped with a reason",
     "reason": "why the road was skipped",
     "length_m_road": "road length (m)",
@@ -256,10 +274,11 @@ def _substring(line, start: float, end: float):
     return seg
 
 
-def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame) -> None:
-    """Layers ``roads``, ``curves`` (PVC-PVT lines) and ``deficiencies`` (the deficient
+def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame,
+               hcurves: pd.DataFrame) -> None:
+    """Layers ``roads``, ``curves`` (PVC-PVT lines), ``deficiencies`` (the deficient
     stretches, cut from the centreline by chainage and drawn half a station beyond their end
-    stations), all in the roads' CRS."""
+    stations) and ``horizontal_curves``, all in the roads' CRS."""
     import geopandas as gpd
     import shapely
 
@@ -286,6 +305,9 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     dg = [cut(r.road_id, r.from_m - step / 2, r.to_m + step / 2) for r in deficiencies.itertuples()]
     gpd.GeoDataFrame(deficiencies, geometry=dg, crs=crs).to_file(path, layer="deficiencies", driver="GPKG",
                                                                 engine="pyogrio")
+    hg = [cut(r.road_id, r.start_m, r.end_m) for r in hcurves.itertuples()]
+    gpd.GeoDataFrame(hcurves, geometry=hg, crs=crs).to_file(path, layer="horizontal_curves", driver="GPKG",
+                                                           engine="pyogrio")
 
 
 def method_lines(result, cfg) -> list[tuple[str, str]]:
@@ -333,6 +355,8 @@ def write_outputs(folder: Path, result, summary: dict, cfg) -> None:
     ev = result.evaluation
     curves = curves_table(ev.curves)
     defs = deficiencies_table(ev.inventory)
+    hcurves = _round(horizontal_table(result, cfg))
+    hcurves.to_csv(folder / "horizontal_curves.csv", index=False)
     write_profiles(folder / "profiles.parquet", result.profiles)
     curves.to_csv(folder / "curves.csv", index=False)
     defs.to_csv(folder / "deficiencies.csv", index=False)
@@ -350,7 +374,41 @@ def write_outputs(folder: Path, result, summary: dict, cfg) -> None:
         ("Run", f"sightaudit {summary['version']}, {summary['started_utc']}"),
     ]
     write_xlsx(folder / "deficiencies.xlsx",
-               {"_summary": _round(ev.summary), "Deficiencies": defs, "Curves": curves, "Roads": roads,
-                "Data notes": notes},
+               {"_summary": _round(ev.summary), "Deficiencies": defs, "Curves": curves,
+                "Horizontal curves": hcurves, "Roads": roads, "Data notes": notes},
                method_lines(result, cfg), summary_lines)
-    write_gpkg(folder / "audit.gpkg", result, curves, defs)
+    write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves)
+
+
+def horizontal_table(result, cfg) -> pd.DataFrame:
+    """Horizontal curves with the minimum-radius check, the sight line offset for the required
+    SSD and the predicted operating speed."""
+    from .plan import min_radius_m, sight_line_offset
+
+    hc = result.hcurves.copy()
+    if not len(hc):
+        for c in HCURVE_EXTRA:
+            hc[c] = pd.Series(dtype=float)
+        return hc
+    cs = result.criteria
+    prof = result.profiles.set_index("road_id")
+    speed, vmax, ssd = [], [], []
+    for r in hc.itertuples():
+        p = prof.loc[[r.road_id]]
+        on = (p["chainage_m"] >= r.start_m) & (p["chainage_m"] <= r.end_m)
+        sp = p.loc[on, ["speed_fwd_kmh", "speed_back_kmh"]].to_numpy() if on.any() else np.array([[np.nan]])
+        v85 = p.loc[on, ["v85_fwd_kmh", "v85_back_kmh"]].to_numpy() if on.any() else np.array([[np.nan]])
+        speed.append(float(np.nanmax(sp)))
+        vmax.append(float(np.nanmin(v85)))
+        ssd.append(float(cs.ssd_design(speed[-1] / cs.speed_to_kmh)) * cs.length_to_m if np.isfinite(speed[-1])
+                   else np.nan)
+    hc["speed_kmh"] = speed
+    f = np.interp(hc["speed_kmh"], cs.friction["speed"] * cs.speed_to_kmh, cs.friction["f_max"])
+    hc["r_min_m"] = min_radius_m(hc["speed_kmh"], cfg["plan.e_max_pct"] / 100.0, f)
+    hc["below_min_radius"] = hc["radius_m"] < hc["r_min_m"]
+    hc["ssd_required_m"] = ssd
+    r_inside = hc["radius_m"] - cfg["plan.lane_width_m"] / 2
+    hc["hso_m"] = sight_line_offset(r_inside, hc["ssd_required_m"])
+    hc["hso_valid"] = hc["ssd_required_m"] <= hc["length_m"]
+    hc["v85_kmh"] = vmax
+    return hc

@@ -539,11 +539,11 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
 
 
 
-# ----------------------------------------------------------------- structures
+# ------------------------------------------------- point and line layers
 @dataclass
-class Structures:
-    """Known bridges and culverts: geometries (points or lines) in their CRS, an optional road
-    id each, an optional length and a label."""
+class Features:
+    """Points or lines located onto roads (known structures; junctions and accesses):
+    geometries in their CRS, an optional road id each, an optional length and a label."""
 
     path: Path
     crs: pyproj.CRS
@@ -553,44 +553,57 @@ class Structures:
     label: np.ndarray
 
 
-def read_structures(path: str | Path, cfg: Config, roads: Roads) -> Structures:
-    path = check_file(path, "structures")
-    frame, crs = read_table(path, what="structures", layer=cfg["structures.layer"],
-                            layer_setting="structures.layer", wkt_column="wkt")
+def read_features(path: str | Path, cfg: Config, roads: Roads, what: str, layer: str = "") -> Features:
+    """Read a layer of points or lines (CSV with ``x, y`` or ``wkt``, or any vector file)."""
+    path = check_file(path, what)
+    frame, crs = read_table(path, what=what, layer=layer, layer_setting=f"the {what} layer", wkt_column="wkt")
     if len(frame) == 0:
-        raise InputError(f"{path}: no structures in the file; remove --structures or fill it in")
+        raise InputError(f"{path}: no {what} in the file; fill it in or leave it out")
     if "geometry" in frame.columns:
         geom = frame["geometry"].to_numpy(dtype=object)
     elif {"x", "y"} <= set(frame.columns):
         geom = shapely.points(numeric_column(frame, "x", path), numeric_column(frame, "y", path))
     else:
-        raise InputError(f"{path}: structures need a geometry, a 'wkt' column or 'x' and 'y' columns")
+        raise InputError(f"{path}: {what} need a geometry, a 'wkt' column or 'x' and 'y' columns")
     if crs is None:
         crs = roads.source_crs
-        roads.notes.append(f"{path.name}: no CRS stated for structures; taken as the roads' CRS")
+        roads.notes.append(f"{path.name}: no CRS stated for {what}; taken as the roads' CRS")
     id_col = cfg["roads.id_column"]
     rid = id_strings(frame[id_col]) if id_col in frame.columns else np.full(len(frame), None, dtype=object)
     length = numeric_column(frame, "length_m", path) if "length_m" in frame.columns else np.full(len(frame), np.nan)
-    label_col = next((c for c in ("name", "label", "structure") if c in frame.columns), None)
-    label = (frame[label_col].fillna("structure").astype(str).to_numpy(dtype=object) if label_col
-             else np.array([f"structure {i + 1}" for i in range(len(frame))], dtype=object))
-    return Structures(path=path, crs=crs, geometry=geom, road_id=rid, length_m=length, label=label)
+    label_col = next((c for c in ("name", "label", "kind", "type") if c in frame.columns), None)
+    label = (frame[label_col].fillna(what).astype(str).to_numpy(dtype=object) if label_col
+             else np.array([f"{what} {i + 1}" for i in range(len(frame))], dtype=object))
+    return Features(path=path, crs=crs, geometry=geom, road_id=rid, length_m=length, label=label)
 
 
-def structure_ranges(st: Structures, line, work_crs: pyproj.CRS, road_id: str, source_id: str,
-                     cfg: Config) -> list[tuple[float, float, str]]:
-    """Chainage ranges (m) of the known structures on one road, with their labels."""
-    tr = transformer(st.crs, work_crs)
-    geoms = _apply(st.geometry, tr, False)
-    near = shapely.distance(geoms, line) <= cfg["structures.max_offset_m"]
-    mine = np.array([r is None or r in (road_id, source_id) for r in st.road_id])
+def feature_chainages(ft: Features, line, work_crs: pyproj.CRS, road_id: str, source_id: str,
+                      max_offset_m: float) -> list[tuple[float, float, float, str]]:
+    """The features on one road (within ``max_offset_m`` of it, and given to it or to no road):
+    ``(from_m, to_m, length_m, label)``; a point has from_m == to_m."""
+    geoms = _apply(ft.geometry, transformer(ft.crs, work_crs), False)
+    ok = np.array([g is not None and not shapely.is_empty(g) for g in geoms])
+    near = np.zeros(len(geoms), dtype=bool)
+    near[ok] = shapely.distance(geoms[ok].astype(object), line) <= max_offset_m
+    mine = np.array([r is None or r in (road_id, source_id) for r in ft.road_id])
     out = []
-    buf, default = cfg["structures.buffer_m"], cfg["structures.default_length_m"]
-    for g, length, label in zip(geoms[near & mine], st.length_m[near & mine], st.label[near & mine]):
+    for g, length, label in zip(geoms[near & mine], ft.length_m[near & mine], ft.label[near & mine]):
         c = shapely.line_locate_point(line, shapely.points(shapely.get_coordinates(g)))
-        lo, hi = float(np.min(c)), float(np.max(c))
+        out.append((float(np.min(c)), float(np.max(c)), float(length), str(label)))
+    return out
+
+
+def structure_ranges(st: Features, line, work_crs: pyproj.CRS, road_id: str, source_id: str,
+                     cfg: Config) -> list[tuple[float, float, str]]:
+    """Chainage ranges (m) of the known structures on one road, with their labels: a line's
+    located span, or a point's given length (else ``structures.default_length_m``) centred on
+    it, plus ``structures.buffer_m`` each side."""
+    buf, default = cfg["structures.buffer_m"], cfg["structures.default_length_m"]
+    out = []
+    for lo, hi, length, label in feature_chainages(st, line, work_crs, road_id, source_id,
+                                                   cfg["structures.max_offset_m"]):
         if hi - lo < 1e-6:
             half = (length if np.isfinite(length) else default) / 2
             lo, hi = lo - half, hi + half
-        out.append((lo - buf, hi + buf, str(label)))
+        out.append((lo - buf, hi + buf, label))
     return out

@@ -32,4 +32,5 @@ def sample_paths() -> dict[str, Path]:
         "dem": d / "wendle_vale_dem.tif",
         "points": d / "wendle_vale_ground_points.csv",
         "structures": d / "wendle_vale_structures.csv",
+        "junctions": d / "wendle_vale_junctions.csv",
     }

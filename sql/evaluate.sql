@@ -2,14 +2,16 @@
 -- Inputs (registered by pipeline/evaluate.py):
 --   roads(road_id, name, road_class, aadt, speed_kmh, speed_basis, length_m, status)
 --   profiles(road_id, chainage_m, grade_pct, sight_fwd_m, sight_back_m, limit_fwd, limit_back,
---            curve_fwd, curve_back)        one row per station (profiles.parquet)
---   keypoints(road_id, chainage_m, direction, sight_m, limit_kind, curve_no, grade)
+--            curve_fwd, curve_back, speed_fwd_kmh, speed_back_kmh)   one row per station
+--   keypoints(road_id, chainage_m, direction, sight_m, limit_kind, curve_no, grade, speed_kmh)
 --       each curve seen from its PVC looking ahead and from its PVT looking back
---   curves(road_id, curve_no, kind, pvc_m, pvt_m, a_pct, length_m, k, ...)
+--   curves(road_id, curve_no, kind, pvc_m, pvt_m, a_pct, length_m, k, judged, ...)
 --   cset      the selected criteria set (one row) with length_to_m and speed_to_kmh
 --   cspeeds   its table of speeds (speed, ssd_design, crest_k, sag_k)
 --   params    one row: grade_adjusted (bool), step_m
 -- Rules:
+--   Each station is judged at its own speed in each direction (the road's speed, or the
+--   predicted operating speed there where the road's speed is predicted).
 --   required SSD: at a tabulated speed the table's design SSD; between rows the calculated
 --   SSD rounded up to the set's step. With grade_adjusted, the calculated SSD on the grade of
 --   the station in the direction of travel, rounded up (the tables are for level roads).
@@ -21,45 +23,48 @@
 -- in the direction of travel (fraction), plus the curves' key points
 CREATE OR REPLACE TEMP VIEW stations AS
 SELECT road_id, chainage_m, 'increasing' AS direction, sight_fwd_m AS sight_m, limit_fwd AS limit_kind,
-       curve_fwd AS curve_no, grade_pct / 100.0 AS grade, false AS is_key
+       curve_fwd AS curve_no, grade_pct / 100.0 AS grade, speed_fwd_kmh AS speed_kmh, false AS is_key
 FROM profiles
 UNION ALL
-SELECT road_id, chainage_m, 'decreasing', sight_back_m, limit_back, curve_back, -grade_pct / 100.0, false
+SELECT road_id, chainage_m, 'decreasing', sight_back_m, limit_back, curve_back, -grade_pct / 100.0,
+       speed_back_kmh, false
 FROM profiles
 UNION ALL
-SELECT road_id, chainage_m, direction, sight_m, limit_kind, curve_no, grade, true
+SELECT road_id, chainage_m, direction, sight_m, limit_kind, curve_no, grade, speed_kmh, true
 FROM keypoints;
 
 CREATE OR REPLACE TEMP VIEW road_req AS
-SELECT r.*,
-       r.speed_kmh / c.speed_to_kmh AS v_set,
-       coalesce(t.ssd_design,
-                round_up(ssd_level(r.speed_kmh / c.speed_to_kmh, c.reaction_time_s, c.deceleration,
-                                   c.speed_coef, c.braking_coef), c.rounding_step)) AS ssd_level_design,
-       t.crest_k AS crest_k_table, t.sag_k AS sag_k_table
+SELECT r.*
 FROM roads r
-CROSS JOIN cset c
-LEFT JOIN cspeeds t ON abs(t.speed - r.speed_kmh / c.speed_to_kmh) < 1e-6
 WHERE r.status = 'evaluated';
 
+-- design values at a speed (km/h): the table's where tabulated, else the rule
 CREATE OR REPLACE TEMP VIEW station_eval AS
+WITH s AS (
+    SELECT s.*, s.speed_kmh / c.speed_to_kmh AS v_set
+    FROM stations s
+    JOIN road_req USING (road_id)
+    CROSS JOIN cset c
+    WHERE s.sight_m IS NOT NULL AND NOT isnan(s.sight_m)
+)
 SELECT s.road_id, s.chainage_m, s.direction, s.sight_m, s.limit_kind, s.curve_no, s.grade, s.is_key,
-       rr.speed_kmh,
+       s.speed_kmh,
        CASE WHEN p.grade_adjusted THEN
-                round_up(ssd_on_grade(rr.v_set, c.reaction_time_s, c.deceleration, s.grade, c.gravity,
+                round_up(ssd_on_grade(s.v_set, c.reaction_time_s, c.deceleration, s.grade, c.gravity,
                                       c.speed_coef, c.grade_coef), c.rounding_step) * c.length_to_m
-            ELSE rr.ssd_level_design * c.length_to_m END AS ssd_required_m,
-       -- speed whose calculated SSD this sight distance meets (set's formula, same grade rule)
+            ELSE coalesce(t.ssd_design, round_up(ssd_level(s.v_set, c.reaction_time_s, c.deceleration,
+                                                           c.speed_coef, c.braking_coef), c.rounding_step))
+                 * c.length_to_m END AS ssd_required_m,
+       -- the speed whose calculated SSD this sight distance meets (set's formula, same grade rule)
        speed_for_sight(s.sight_m / c.length_to_m, c.speed_coef * c.reaction_time_s,
                        CASE WHEN p.grade_adjusted
                             THEN 1.0 / (c.grade_coef * (c.deceleration / c.gravity + s.grade))
                             ELSE c.braking_coef / c.deceleration END) * c.speed_to_kmh
            AS supported_speed_kmh
-FROM stations s
-JOIN road_req rr USING (road_id)
+FROM s
 CROSS JOIN cset c
 CROSS JOIN params p
-WHERE s.sight_m IS NOT NULL AND NOT isnan(s.sight_m);
+LEFT JOIN cspeeds t ON abs(t.speed - s.v_set) < 1e-6;
 
 CREATE OR REPLACE TEMP VIEW station_verdict AS
 SELECT e.*,
@@ -70,7 +75,7 @@ LEFT JOIN curves c ON c.road_id = e.road_id AND c.curve_no = e.curve_no;
 
 -- one row per curve: its available sight distance (smallest over the stations whose sight it
 -- limits, in either direction; where it limits none, the smallest over its own span), the
--- requirement, the verdict, the speed it supports and the K check
+-- requirement at the speed judged there, the verdict, the speed it supports and the K check
 CREATE OR REPLACE TEMP VIEW curve_eval AS
 WITH limited AS (
     SELECT road_id, curve_no,
@@ -79,33 +84,48 @@ WITH limited AS (
            min(sight_m) FILTER (WHERE direction = 'decreasing') AS sight_decreasing_m,
            max(ssd_required_m) AS ssd_required_m,
            bool_or(short) AS deficient,
-           arg_min(supported_speed_kmh, sight_m - ssd_required_m) AS supported_speed_kmh
+           arg_min(supported_speed_kmh, sight_m - ssd_required_m) AS supported_speed_kmh,
+           max(speed_kmh) AS speed_kmh
     FROM station_verdict
     WHERE curve_no > 0
     GROUP BY road_id, curve_no
 ), span AS (
-    SELECT c.road_id, c.curve_no, min(s.sight_m) AS sight_span_m
+    SELECT c.road_id, c.curve_no, min(s.sight_m) AS sight_span_m, max(s.ssd_required_m) AS ssd_span_m,
+           max(s.speed_kmh) AS speed_span_kmh
     FROM curves c
     JOIN station_verdict s ON s.road_id = c.road_id AND NOT s.is_key
          AND s.chainage_m BETWEEN c.pvc_m AND c.pvt_m
     GROUP BY c.road_id, c.curve_no
+), judged AS (
+    SELECT c.*,
+           coalesce(l.sight_min_m, sp.sight_span_m) AS sight_available_m,
+           l.sight_increasing_m, l.sight_decreasing_m,
+           coalesce(l.ssd_required_m, sp.ssd_span_m) AS ssd_required_m,
+           coalesce(l.speed_kmh, sp.speed_span_kmh, rr.speed_kmh) AS speed_kmh,
+           coalesce(l.deficient, false) AS deficient,
+           CASE WHEN l.curve_no IS NULL THEN 'none within the look-ahead' ELSE 'this curve' END
+               AS sight_limited_by,
+           l.supported_speed_kmh  -- empty where the curve limits no sight distance
+    FROM curves c
+    JOIN road_req rr USING (road_id)
+    LEFT JOIN limited l USING (road_id, curve_no)
+    LEFT JOIN span sp USING (road_id, curve_no)
+), k_at AS (
+    SELECT j.road_id, j.curve_no, j.speed_kmh / cs.speed_to_kmh AS v_set,
+           coalesce(t.ssd_design, round_up(ssd_level(j.speed_kmh / cs.speed_to_kmh, cs.reaction_time_s,
+                                                     cs.deceleration, cs.speed_coef, cs.braking_coef),
+                                           cs.rounding_step)) AS ssd_design_set,
+           t.crest_k AS crest_k_table, t.sag_k AS sag_k_table
+    FROM judged j
+    CROSS JOIN cset cs
+    LEFT JOIN cspeeds t ON abs(t.speed - j.speed_kmh / cs.speed_to_kmh) < 1e-6
 )
-SELECT c.*,
-       coalesce(l.sight_min_m, sp.sight_span_m) AS sight_available_m,
-       l.sight_increasing_m, l.sight_decreasing_m,
-       coalesce(l.ssd_required_m, rr.ssd_level_design * cs.length_to_m) AS ssd_required_m,
-       rr.speed_kmh,
-       coalesce(l.deficient, false) AS deficient,
-       CASE WHEN l.curve_no IS NULL THEN 'none within the look-ahead' ELSE 'this curve' END AS sight_limited_by,
-       l.supported_speed_kmh,  -- empty where the curve limits no sight distance
-       CASE c.kind
-            WHEN 'crest' THEN coalesce(rr.crest_k_table,
-                 k_round(pow(rr.ssd_level_design, 2) / cs.crest_k_const))
-            ELSE coalesce(rr.sag_k_table,
-                 k_round(pow(rr.ssd_level_design, 2) / (cs.sag_k_const + cs.sag_k_per_s * rr.ssd_level_design)))
+SELECT j.*,
+       CASE j.kind
+            WHEN 'crest' THEN coalesce(k.crest_k_table, k_round(pow(k.ssd_design_set, 2) / cs.crest_k_const))
+            ELSE coalesce(k.sag_k_table,
+                 k_round(pow(k.ssd_design_set, 2) / (cs.sag_k_const + cs.sag_k_per_s * k.ssd_design_set)))
        END * cs.length_to_m AS k_required
-FROM curves c
-JOIN road_req rr USING (road_id)
-CROSS JOIN cset cs
-LEFT JOIN limited l USING (road_id, curve_no)
-LEFT JOIN span sp USING (road_id, curve_no);
+FROM judged j
+JOIN k_at k USING (road_id, curve_no)
+CROSS JOIN cset cs;

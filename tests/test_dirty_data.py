@@ -181,7 +181,7 @@ def test_mixed_batch_skips_bad_roads_and_evaluates_good_ones_as_alone(tmp_path):
     profiles["DUP"] = (c, good2)
     profiles["STEEP"] = (c, 100 + 0.35 * c)
     pts = chainage_points_csv(tmp_path / "mixed_pts.csv", profiles)
-    mixed = run(tmp_path, roads, pts)
+    mixed = run(tmp_path, roads, pts, **{"speed.predict_missing": False})
 
     table = mixed.road_table().set_index("road_id")
     assert len(table) == len(bad_roads)
@@ -304,9 +304,10 @@ def test_failure_while_writing_leaves_nothing_half_written(tmp_path, run_cli, mo
 def test_run_json_accounts_for_skipped_roads(tmp_path, run_cli):
     roads = straight_roads_csv(tmp_path / "r.csv", [("A", 500.0, 80, 0), ("B", 500.0, None, 100)])
     (tmp_path / "g.csv").write_text("road_id,chainage_m,z\nA,0,1\nA,500,2\nB,0,1\nB,500,2\n")
+    (tmp_path / "c.toml").write_text("[speed]\npredict_missing = false\n")
     out = tmp_path / "o"
     code, _, err = run_cli("run", "--roads", roads, "--roads-crs", "EPSG:32633", "--ground", tmp_path / "g.csv",
-                           "--out", out, "-q")
+                           "--config", tmp_path / "c.toml", "--out", out, "-q")
     assert code == 0, err
     r = json.loads((out / "run.json").read_text())["roads"]
     assert (r["in"], r["evaluated"], r["skipped"]) == (2, 1, 1)

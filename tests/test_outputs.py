@@ -22,7 +22,7 @@ DEFICIENCY_CONTRACT = ["rank", "road_id", "curve_no", "kind", "direction", "from
 
 def test_every_output_is_written(demo_out):
     for name in ("curves.csv", "deficiencies.csv", "deficiencies.xlsx", "audit.gpkg", "profiles.parquet",
-                 "run.json"):
+                 "run.json", "horizontal_curves.csv"):
         assert (demo_out / name).is_file() and (demo_out / name).stat().st_size > 0, name
 
 
@@ -57,7 +57,9 @@ def test_geopackage_reads_back(demo_out, samples):
     """pyogrio lists the three layers; geopandas reads them with the roads' CRS and one feature
     per CSV row."""
     layers = {name for name, _ in pyogrio.list_layers(demo_out / "audit.gpkg")}
-    assert {"roads", "curves", "deficiencies"} <= layers
+    assert {"roads", "curves", "deficiencies", "horizontal_curves"} <= layers
+    hc = gpd.read_file(demo_out / "audit.gpkg", layer="horizontal_curves")
+    assert len(hc) == len(pd.read_csv(demo_out / "horizontal_curves.csv"))
     src_crs = pyproj.CRS(gpd.read_file(samples["roads"], layer="roads").crs)
     roads = gpd.read_file(demo_out / "audit.gpkg", layer="roads")
     curves = gpd.read_file(demo_out / "audit.gpkg", layer="curves")
@@ -92,7 +94,7 @@ def test_workbook_reads_back(demo_out):
     import openpyxl
 
     wb = openpyxl.load_workbook(demo_out / "deficiencies.xlsx")
-    assert {"Summary", "Deficiencies", "Curves", "Roads", "Method"} <= set(wb.sheetnames)
+    assert {"Summary", "Deficiencies", "Curves", "Horizontal curves", "Roads", "Method"} <= set(wb.sheetnames)
     ws = wb["Deficiencies"]
     header = [c.value for c in ws[1]]
     assert header == list(pd.read_csv(demo_out / "deficiencies.csv").columns)

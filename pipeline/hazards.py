@@ -1,0 +1,106 @@
+"""What a crest hides: the stretch beyond it out of a driver's sight, and the hazards in it.
+
+Crashes at crest curves with short sight distance rise mainly where something is
+hidden beyond the crest -- a horizontal curve, an intersection or a driveway
+(Harwood & Bauer 2015, *TRR* 2486: 452 crest curves in Washington State). For each
+crest and direction of travel the **hidden zone** is the stretch of road surface
+beyond the crest that a driver cannot see from the required stopping sight
+distance back: a point q is hidden when the line of sight from the eye at
+q - SSD (direction of travel) to the road surface at q passes below the road
+somewhere in between. A **hazard** is hidden when a horizontal curve begins (in
+the direction of travel) or a junction or access lies within the zone.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import shapely
+
+
+def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float, direction: int,
+                eye_height_m: float, object_height_m: float = 0.0, step_m: float = 1.0,
+                road_length_m: float | None = None) -> tuple[float, float] | None:
+    """Chainage range (from, to; from <= to) of road surface hidden beyond a crest from drivers
+    ``sight_m`` back, travelling in ``direction`` (+1 with the chainage, -1 against it); ``None``
+    when nothing beyond the crest is hidden. ``profile(x)`` gives the road elevation (m)."""
+    S = float(sight_m)
+    if not S > 0:
+        return None
+    half = abs(crest_pvt_m - crest_pvi_m)
+    q = crest_pvi_m + direction * np.arange(0.0, S + 2 * half + step_m, step_m)
+    p = q - direction * S
+    keep = (p >= 0) & (q >= 0)
+    if road_length_m is not None:
+        keep &= (p <= road_length_m) & (q <= road_length_m)
+    q, p = q[keep], p[keep]
+    if not len(q):
+        return None
+    W = max(int(np.ceil(S / step_m)), 2)
+    frac = np.arange(1, W) / W
+    between = p[:, None] + direction * S * frac[None, :]
+    zq = np.asarray(profile(q), dtype=float)
+    zp = np.asarray(profile(p), dtype=float) + eye_height_m
+    zb = np.asarray(profile(between.ravel()), dtype=float).reshape(between.shape)
+    sight_line = zp[:, None] + (zq + object_height_m - zp)[:, None] * frac[None, :]
+    with np.errstate(invalid="ignore"):
+        hidden = np.any(zb > sight_line + 1e-9, axis=1)
+    hidden &= np.isfinite(zq) & np.isfinite(zp)
+    if not hidden.any():
+        return None
+    from .profile import run_lengths
+
+    a, b = run_lengths(hidden)[0]
+    lo, hi = sorted((float(q[a]), float(q[b - 1])))
+    return lo, hi
+
+
+def network_junctions(lines: dict[str, object], snap_m: float) -> dict[str, list[tuple[float, str]]]:
+    """Junctions found in the road network itself: where one road's end lies on another road
+    (within ``snap_m``), both roads get a junction at that point. ``lines`` maps road id to its
+    centreline in one metric CRS."""
+    ids = list(lines)
+    geoms = np.array([lines[i] for i in ids], dtype=object)
+    tree = shapely.STRtree(geoms)
+    out: dict[str, list[tuple[float, str]]] = {i: [] for i in ids}
+    for k, rid in enumerate(ids):
+        line = geoms[k]
+        for end, at in ((shapely.get_point(line, 0), 0.0), (shapely.get_point(line, -1), float(line.length))):
+            for j in tree.query(end, predicate="dwithin", distance=snap_m):
+                if j == k:
+                    continue
+                other = ids[j]
+                c = float(shapely.line_locate_point(geoms[j], end))
+                out[other].append((c, f"junction with {rid}"))
+                out[rid].append((at, f"junction with {other}"))
+    return out
+
+
+def hazards_in_zone(zone: tuple[float, float] | None, direction: int, hcurves: pd.DataFrame,
+                    junctions: list[tuple[float, str]]) -> dict:
+    """The hidden hazards in a zone: a horizontal curve beginning in it (in the direction of
+    travel) and junctions or accesses lying in it."""
+    out = {"hidden_from_m": np.nan, "hidden_to_m": np.nan, "hidden_hazard": "none",
+           "hazard_chainage_m": np.nan, "hazard_detail": ""}
+    if zone is None:
+        return out
+    lo, hi = zone
+    out["hidden_from_m"], out["hidden_to_m"] = lo, hi
+    found = []
+    if len(hcurves):
+        begins = hcurves["start_m"] if direction > 0 else hcurves["end_m"]
+        for b, r in zip(begins, hcurves["radius_m"]):
+            if lo <= b <= hi:
+                found.append(("horizontal curve", float(b), f"horizontal curve of radius {r:.0f} m begins"))
+    for c, label in junctions:
+        if lo <= c <= hi:
+            found.append(("junction", float(c), label))
+    if not found:
+        return out
+    kinds = {f[0] for f in found}
+    out["hidden_hazard"] = "both" if len(kinds) == 2 else kinds.pop()
+    # the first hazard a driver meets
+    first = min(found, key=lambda f: direction * f[1])
+    out["hazard_chainage_m"] = first[1]
+    out["hazard_detail"] = "; ".join(f"{f[2]} at {f[1]:.0f} m" for f in sorted(found, key=lambda f: direction * f[1]))
+    return out

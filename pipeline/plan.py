@@ -1,0 +1,199 @@
+"""Horizontal alignment from the centreline: heading, curvature, tangents and circular curves.
+
+Method (the heading-direction approach, e.g. Camacho-Torregrosa et al. 2015,
+*Computer-Aided Civil and Infrastructure Engineering* 30(4) 282-299 -- cited from
+memory):
+
+1. The centreline (working CRS, metres) is resampled every ``step_m`` and its
+   heading taken between neighbouring points (unwrapped).
+2. The heading is smoothed against digitising noise with a Savitzky-Golay filter
+   (Savitzky & Golay 1964, *Analytical Chemistry* 36(8) 1627-1639) over
+   ``smooth_m``; curvature is its derivative.
+3. Curves are the runs where curvature keeps one sign and exceeds both
+   ``1 / max_radius_m`` and four times the curvature's noise (estimated from the
+   heading's own scatter), at least ``min_length_m`` long and turning at least
+   ``min_deflection_deg``; the rest is tangent.
+4. Each curve's radius is a least-squares circle fitted to its points: the
+   algebraic fit of Kasa (1976, *IEEE Trans. Instrumentation and Measurement*
+   IM-25(1) 8-14) refined by geometric (orthogonal distance) least squares
+   (see N. Chernov, *Circular and Linear Regression*, CRC Press 2010). The arc
+   is centred where the bend's curvature is centred and is R times the
+   deflection long; the circle is fitted first to the run's core, then again to
+   that arc.
+
+Per curve: start and end chainage, length, radius, deflection angle (heading
+change between the tangents either side, degrees) and direction (left or right in the direction of increasing
+chainage), and the circle fit's RMSE.
+
+Checks (AASHTO Green Book ch. 3):
+
+- minimum radius R_min = V^2 / (127 (e + f)) (m, km/h; V^2 / (15 (e + f)) in ft and
+  mph), with e the maximum superelevation (setting) and f the side friction
+  factor tabulated by speed (``sql/criteria/side_friction.csv``);
+- horizontal sight line offset HSO = R (1 - cos(28.65 S / R)) (degrees), the lateral
+  clearance from the centre of the inside lane needed for sight distance S, valid
+  while S is shorter than the curve.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import shapely
+
+DEFAULTS = {"step_m": 5.0, "smooth_m": 50.0, "max_radius_m": 3000.0, "min_length_m": 20.0,
+            "min_deflection_deg": 3.0}
+
+HCURVE_COLUMNS = ["hcurve_no", "start_m", "end_m", "length_m", "radius_m", "deflection_deg", "direction",
+                  "fit_rmse_m"]
+
+
+def heading_curvature(line, step_m: float, smooth_m: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+    """Chainage (m), smoothed heading (rad, anticlockwise from east, unwrapped), curvature
+    (1/m, positive turning left) every ``step_m`` along ``line``, and the standard deviation of
+    the curvature's noise (1/m): the heading's own high-frequency scatter (1.4826 MAD of raw
+    minus smoothed) times the noise gain of the derivative filter."""
+    from scipy.signal import savgol_coeffs, savgol_filter
+
+    length = float(shapely.length(line))
+    n = max(int(np.floor(length / step_m)) + 1, 2)
+    ch = np.linspace(0.0, length, n)
+    xy = shapely.get_coordinates(shapely.line_interpolate_point(line, ch))
+    d = np.diff(xy, axis=0)
+    seg = np.unwrap(np.arctan2(d[:, 1], d[:, 0]))
+    # heading at the points: mean of the segments either side
+    head = np.concatenate([[seg[0]], 0.5 * (seg[:-1] + seg[1:]), [seg[-1]]])
+    h = ch[1] - ch[0] if n > 1 else step_m
+    win = int(round(smooth_m / h)) | 1
+    if win >= 5 and n > win:
+        smooth = savgol_filter(head, win, 2)
+        curv = savgol_filter(head, win, 2, deriv=1, delta=h)
+        resid = head - smooth
+        noise = 1.4826 * np.median(np.abs(resid - np.median(resid)))
+        gain = float(np.sqrt(np.sum(savgol_coeffs(win, 2, deriv=1, delta=h) ** 2)))
+        return ch, smooth, curv, noise * gain
+    curv = np.gradient(head, h) if n > 2 else np.zeros(n)
+    return ch, head, curv, 0.0
+
+
+def fit_circle(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:
+    """Least-squares circle through points: Kasa's algebraic fit, then geometric refinement.
+    Returns centre x, centre y, radius (m) and RMS orthogonal distance (m)."""
+    from scipy.optimize import least_squares
+
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    mx, my = x.mean(), y.mean()
+    u, v = x - mx, y - my
+    A = np.column_stack([u, v, np.ones_like(u)])
+    b = u * u + v * v
+    (p, q, c), *_ = np.linalg.lstsq(A, b, rcond=None)
+    cx, cy = p / 2, q / 2
+    r = np.sqrt(max(c + cx * cx + cy * cy, 1e-12))
+
+    def resid(t):
+        return np.hypot(u - t[0], v - t[1]) - t[2]
+
+    sol = least_squares(resid, [cx, cy, r], method="lm")
+    cx, cy, r = sol.x
+    rms = float(np.sqrt(np.mean(resid(sol.x) ** 2)))
+    return float(cx + mx), float(cy + my), float(abs(r)), rms
+
+
+def _detect(line, opts: dict, smooth_m: float) -> list[dict]:
+    """Curves found with heading smoothed over ``smooth_m``."""
+    opts = opts | {"smooth_m": smooth_m}
+    ch, head, curv, k_noise = heading_curvature(line, opts["step_m"], smooth_m)
+    k_min = max(1.0 / opts["max_radius_m"], 4.0 * k_noise)
+    sign = (np.sign(curv) * (np.abs(curv) > k_min)).astype(int)
+    # a bend briefly dipping under the threshold (noise) is still one bend
+    gap = int(round(opts["smooth_m"] / (ch[1] - ch[0])))
+    from .profile import run_lengths
+
+    for a, b in run_lengths(sign == 0):
+        if 0 < a and b < len(sign) and b - a <= gap and sign[a - 1] == sign[b]:
+            sign[a:b] = sign[a - 1]
+    rows = []
+    i = 0
+    n = len(ch)
+    while i < n:
+        if sign[i] == 0:
+            i += 1
+            continue
+        j = i
+        while j + 1 < n and sign[j + 1] == sign[i]:
+            j += 1
+        # deflection: heading change between the tangents either side (beyond the smoothing)
+        w = int(round(opts["smooth_m"] / (ch[1] - ch[0]) / 2)) + 1
+        lo, hi = max(i - w, 0), min(j + w, n - 1)
+        defl = np.degrees(head[hi] - head[lo])
+        # the arc: centred where the bend's curvature is centred, as long as R x deflection,
+        # with R from a circle fitted to it (once from the core of the run, then refined)
+        kk = np.abs(curv[lo:hi + 1])
+        centre = float(np.sum(kk * ch[lo:hi + 1]) / np.sum(kk))
+        run = np.abs(curv[i:j + 1])
+        core = np.flatnonzero(run >= 0.5 * np.median(run))
+        start, end = ch[i + core[0]], ch[i + core[-1]]
+        radius, rms = np.nan, np.nan
+        for _ in range(2):
+            if end - start < opts["min_length_m"]:
+                break
+            pts = shapely.get_coordinates(shapely.line_interpolate_point(
+                line, np.linspace(start, end, max(int((end - start) / 2.0), 8))))
+            _, _, radius, rms = fit_circle(pts[:, 0], pts[:, 1])
+            arc = min(radius * np.radians(abs(defl)), ch[-1])
+            start, end = max(centre - arc / 2, 0.0), min(centre + arc / 2, ch[-1])
+        if end - start >= opts["min_length_m"] and abs(defl) >= opts["min_deflection_deg"] and np.isfinite(radius):
+            rows.append({"start_m": start, "end_m": end, "length_m": end - start, "radius_m": radius,
+                         "deflection_deg": abs(defl), "direction": "left" if defl > 0 else "right",
+                         "fit_rmse_m": rms})
+        i = j + 1
+    return rows
+
+
+def horizontal_curves(line, opts: dict | None = None) -> pd.DataFrame:
+    """Circular curves of a centreline (working CRS, metres); see module notes.
+
+    Two scales: heading smoothed over ``smooth_m`` finds sharp curves close together; smoothed
+    over three times that, it finds long flat curves that noise breaks up at the first scale.
+    A coarse-scale curve replaces the fine-scale pieces inside it when they all turn its way.
+    """
+    opts = DEFAULTS | (opts or {})
+    length = float(shapely.length(line))
+    if length < 3 * opts["step_m"]:
+        return pd.DataFrame(columns=HCURVE_COLUMNS)
+    fine = _detect(line, opts, opts["smooth_m"])
+    coarse = _detect(line, opts, 3 * opts["smooth_m"]) if length > 6 * opts["smooth_m"] else []
+    rows = list(fine)
+    for c in coarse:
+        inside = [f for f in rows if f["end_m"] > c["start_m"] - opts["smooth_m"]
+                  and f["start_m"] < c["end_m"] + opts["smooth_m"]]
+        if all(f["direction"] == c["direction"] for f in inside) and (len(inside) != 1 or
+                                                                     inside[0]["deflection_deg"] < 0.8 * c["deflection_deg"]):
+            rows = [f for f in rows if f not in inside] + [c]
+    rows.sort(key=lambda r: r["start_m"])
+    frame = pd.DataFrame(rows, columns=HCURVE_COLUMNS[1:])
+    frame.insert(0, "hcurve_no", np.arange(1, len(frame) + 1))
+    return frame
+
+
+def min_radius_m(speed_kmh, e_max: float, f_max) -> np.ndarray:
+    """Minimum radius (m) for speed V (km/h): V^2 / (127 (e + f)), AASHTO Green Book ch. 3
+    (e, f as fractions)."""
+    v = np.asarray(speed_kmh, dtype=float)
+    return v**2 / (127.0 * (e_max + np.asarray(f_max, dtype=float)))
+
+
+def min_radius_ft(speed_mph, e_max: float, f_max) -> np.ndarray:
+    """Minimum radius (ft) for speed V (mph): V^2 / (15 (e + f)), AASHTO Green Book ch. 3."""
+    v = np.asarray(speed_mph, dtype=float)
+    return v**2 / (15.0 * (e_max + np.asarray(f_max, dtype=float)))
+
+
+def sight_line_offset(radius, sight):
+    """Horizontal sight line offset HSO = R (1 - cos(28.65 S / R)), angle in degrees (AASHTO
+    Green Book ch. 3), any consistent length unit; R is the radius of the inside lane's
+    centre."""
+    R = np.asarray(radius, dtype=float)
+    S = np.asarray(sight, dtype=float)
+    return R * (1.0 - np.cos(np.radians(28.65 * S / R)))

@@ -1,0 +1,95 @@
+"""Operating speed of cars on rural two-lane highways (85th percentile, km/h).
+
+Speed-prediction equations of Fitzpatrick et al. (2000), *Speed Prediction for
+Two-Lane Rural Highways*, FHWA-RD-99-171 (equations recalled from the report;
+to be confirmed against it before relying on a value). R is the horizontal
+curve radius (m), K the crest's rate of vertical curvature (m per %):
+
+==========================================================  ========================
+situation                                                   V85 (km/h)
+==========================================================  ========================
+horizontal curve on a grade of -9 to -4 %                   102.10 - 3077.13 / R
+horizontal curve on a grade of -4 to 0 %                    105.98 - 3709.90 / R
+horizontal curve on a grade of 0 to 4 %                     104.82 - 3574.51 / R
+horizontal curve on a grade of 4 to 9 %                     96.61 - 2752.19 / R
+horizontal curve combined with a sag curve                  105.32 - 3438.19 / R
+horizontal curve combined with a limited-sight crest        103.24 - 3576.51 / R
+(K <= 43 m/%)
+limited-sight crest (K <= 43 m/%) on a tangent              105.08 - 149.69 / K
+tangent, no limiting curve                                  desired speed (setting,
+                                                            about 98 km/h, assumed)
+==========================================================  ========================
+
+Grades are in the direction of travel (the equations were fitted to both
+directions); grades steeper than 9 % use the nearest band. No prediction exceeds
+the desired speed.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+LIMITED_SIGHT_K = 43.0
+
+
+def v85_horizontal_on_grade(radius_m, grade_pct):
+    """V85 (km/h) on a horizontal curve by grade band (FHWA-RD-99-171)."""
+    R = np.asarray(radius_m, dtype=float)
+    g = np.asarray(grade_pct, dtype=float)
+    return np.select([g < -4, g < 0, g < 4],
+                     [102.10 - 3077.13 / R, 105.98 - 3709.90 / R, 104.82 - 3574.51 / R],
+                     96.61 - 2752.19 / R)
+
+
+def v85_horizontal_with_sag(radius_m):
+    """V85 (km/h) on a horizontal curve combined with a sag curve (FHWA-RD-99-171)."""
+    return 105.32 - 3438.19 / np.asarray(radius_m, dtype=float)
+
+
+def v85_horizontal_with_crest(radius_m):
+    """V85 (km/h) on a horizontal curve combined with a limited-sight crest (FHWA-RD-99-171)."""
+    return 103.24 - 3576.51 / np.asarray(radius_m, dtype=float)
+
+
+def v85_crest_on_tangent(k):
+    """V85 (km/h) on a limited-sight crest (K <= 43 m/%) on a tangent (FHWA-RD-99-171)."""
+    return 105.08 - 149.69 / np.asarray(k, dtype=float)
+
+
+def predict_v85(chainage_m: np.ndarray, grade_pct: np.ndarray, vcurves: pd.DataFrame, hcurves: pd.DataFrame,
+                desired_kmh: float, direction: int = 1) -> np.ndarray:
+    """Predicted 85th-percentile car speed (km/h) at each station, in one direction of travel.
+
+    A station on a horizontal curve takes the curve's equation for its vertical situation (a
+    sag or a limited-sight crest overlapping the horizontal curve, else the grade band of the
+    curve's mean grade); a station on a limited-sight crest on a tangent takes the crest
+    equation; elsewhere the desired speed. Never above the desired speed.
+    """
+    ch = np.asarray(chainage_m, dtype=float)
+    g = direction * np.asarray(grade_pct, dtype=float)
+    v = np.full(len(ch), float(desired_kmh))
+    crests = vcurves[(vcurves["kind"] == "crest") & (vcurves["k"] <= LIMITED_SIGHT_K)] if len(vcurves) else vcurves
+    sags = vcurves[vcurves["kind"] == "sag"] if len(vcurves) else vcurves
+    on_h = np.zeros(len(ch), dtype=bool)
+    for hc in hcurves.itertuples():
+        on = (ch >= hc.start_m) & (ch <= hc.end_m)
+        if not on.any():
+            continue
+        on_h |= on
+
+        def overlaps(t):
+            return len(t) and bool(((t["pvc_m"] <= hc.end_m) & (t["pvt_m"] >= hc.start_m)).any())
+
+        if overlaps(crests):
+            vh = v85_horizontal_with_crest(hc.radius_m)
+        elif overlaps(sags):
+            vh = v85_horizontal_with_sag(hc.radius_m)
+        else:
+            vh = v85_horizontal_on_grade(hc.radius_m, np.nanmean(g[on]) if np.isfinite(g[on]).any() else 0.0)
+        v[on] = np.minimum(v[on], vh)
+    for c in crests.itertuples():
+        on = (ch >= c.pvc_m) & (ch <= c.pvt_m) & ~on_h
+        if on.any() and c.k > 0:
+            v[on] = np.minimum(v[on], v85_crest_on_tangent(c.k))
+    return np.clip(v, 0.0, desired_kmh)
