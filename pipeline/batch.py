@@ -290,6 +290,10 @@ def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.nda
     otherwise the road is skipped. With ``speed.source = "predicted"`` every road is judged at
     predicted speeds."""
     raw = table["speed_raw"].to_numpy(dtype=float)
+    if cfg["output.units"] == "us":  # the speed column is in mph
+        from .units import kmh_per_mph
+
+        raw = raw * kmh_per_mph()
     margin = cfg["speed.margin_kmh"]
     defaults = cfg["speed.default_by_class"]
     speed = np.full(len(table), np.nan)
@@ -607,6 +611,14 @@ def network_summary(result: NetworkResult) -> pd.DataFrame:
     return run_sql("network_summary", {"roads": result.road_table(), "stations": prof})
 
 
+def _units_info(cfg: Config) -> dict:
+    from .units import OutputUnits
+
+    u = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
+    return {"system": u.system, "length": u.length_label, "speed": u.speed_label, "distance": u.distance_label,
+            "factor_km": u.km_per_distance}
+
+
 def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_dir: str | Path,
               progress: Progress | None = None, command: list[str] | None = None) -> dict:
     """The whole audit: read, compute, write every output into ``out_dir``.
@@ -637,6 +649,8 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
             "working_crs": {k: v.name for k, v in result.roads.work_crs.items()},
             "roads": accounting(result),
             "criteria": {k: result.criteria.params[k] for k in ("name", "title", "source", "edition", "units")},
+            "units": _units_info(cfg),
+            "hazard_stretches": int((result.evaluation.inventory["hidden_hazard"] != "none").sum()),
             "network_by_class": network_summary(result).to_dict(orient="records"),
             "audit_summary": result.evaluation.summary.to_dict(orient="records"),
             "notes": result.notes,

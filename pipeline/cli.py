@@ -33,6 +33,7 @@ RUN_FLAGS = [
     ("--structures", "structures.file", str, "PATH", "known bridges and culverts to mask (points or lines)"),
     ("--junctions", "junctions.file", str, "PATH", "junctions and accesses to look for beyond crests (points)"),
     ("--speed-source", "speed.source", str, "SOURCE", "attribute (speed column) or predicted (FHWA-RD-99-171)"),
+    ("--units", "output.units", str, "SYSTEM", "metric (m, km/h) or us (ft, mph): speeds read, results written"),
 ]
 
 
@@ -57,7 +58,23 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--out", required=True, metavar="DIR", help="output folder (replaced if it holds an earlier run)")
     for flag, key, typ, metavar, text in RUN_FLAGS:
         run.add_argument(flag, dest=key, type=typ, default=None, metavar=metavar, help=text)
+    run.add_argument("--profiles-pdf", dest="output.profiles_pdf", action="store_const", const=True, default=None,
+                     help="also write profiles.pdf: one long profile per road, for the field team")
     common(run)
+
+    val = sub.add_parser("validate", help="check the inputs without running the audit",
+                         description="Check roads and ground data as a run would read them, and report what was "
+                                     "found: roads, CRS, lengths, speeds, ground coverage and problems.")
+    val.add_argument("--roads", required=True, metavar="PATH", help="road centrelines")
+    val.add_argument("--ground", required=True, metavar="PATH", help="DEM GeoTIFF or ground points")
+    val.add_argument("--config", metavar="FILE.toml", help="settings file")
+    for flag, key, typ, metavar, text in RUN_FLAGS[:7] + RUN_FLAGS[-1:]:
+        val.add_argument(flag, dest=key, type=typ, default=None, metavar=metavar, help=text)
+
+    init = sub.add_parser("init", help="write an example settings file, every setting explained",
+                          description="Write a settings file listing every setting with its default and meaning.")
+    init.add_argument("path", nargs="?", default="sightaudit.toml", help="file to write [sightaudit.toml]")
+    init.add_argument("--force", action="store_true", help="replace the file if it exists")
 
     crit = sub.add_parser("criteria", help="list the criteria sets, or show one",
                           description="List the criteria sets (published SSD and K values), or show one.")
@@ -68,6 +85,8 @@ def _parser() -> argparse.ArgumentParser:
     demo = sub.add_parser("demo", help="run the audit on the bundled sample network",
                           description="Run the whole audit on the bundled Wendle Vale sample network.")
     demo.add_argument("--out", default="out/demo", metavar="DIR", help="output folder [out/demo]")
+    demo.add_argument("--profiles-pdf", dest="output.profiles_pdf", action="store_const", const=True, default=None,
+                      help="also write profiles.pdf")
     common(demo)
     return p
 
@@ -134,16 +153,42 @@ def _progress(args):
 
 
 def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
+    """The closing summary: a table on a terminal, plain lines in a log."""
     if quiet:
         return
     r = summary["roads"]
-    print(f"Output folder: {out.resolve()}")
-    print(f"Roads: {r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped")
+    net = next((x for x in summary.get("audit_summary", []) if x["road_class"] == "network"), {})
+    u = summary.get("units", {"distance": "km", "factor_km": 1.0})
+    dist = lambda km: f"{(km or 0) / u['factor_km']:.2f} {u['distance']}"  # noqa: E731
+    rows = [
+        ("Roads", f"{r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped"),
+        ("Length audited", dist(net.get("km_audited"))),
+        ("Vertical curves", f"{int(net.get('curves') or 0)} ({int(net.get('crests') or 0)} crests, "
+                            f"{int(net.get('sags') or 0)} sags)"),
+        ("Deficient curves", f"{int(net.get('deficient_curves') or 0)}"),
+        ("Deficient stretches", f"{int(net.get('deficient_stretches') or 0)}: severe {dist(net.get('deficient_km_severe'))}, "
+                                f"moderate {dist(net.get('deficient_km_moderate'))}, minor {dist(net.get('deficient_km_minor'))}"),
+        ("Hiding a hazard", f"{summary.get('hazard_stretches', 0)} stretch(es)"),
+        ("Time", f"{sum(summary['stage_seconds'].values()):.1f} s"),
+        ("Output folder", str(out.resolve())),
+    ]
     for reason, n in r["skipped_by_reason"].items():
-        print(f"  skipped ({n}): {reason}")
-    secs = sum(summary["stage_seconds"].values())
-    print(f"Time: {secs:.1f} s")
-    print("Screening results only: confirm by field survey and a licensed engineer; local codes govern.")
+        rows.append((f"Skipped ({n})", reason))
+    if sys.stdout.isatty():
+        from rich.console import Console
+        from rich.table import Table
+
+        table = Table(title="sightaudit: audit finished", show_header=False, title_justify="left")
+        table.add_column(style="bold")
+        table.add_column()
+        for k, v in rows:
+            table.add_row(k, v)
+        Console().print(table)
+    else:
+        for k, v in rows:
+            print(f"{k}: {v}")
+    print("Screening results only: confirm by field survey and a licensed engineer; local codes govern. "
+          "Start with report.html.")
 
 
 def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> int:
@@ -154,6 +199,49 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     out = Path(args.out)
     summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:])
     _print_summary(summary, out, args.quiet)
+    return 0
+
+
+def _init(args) -> int:
+    from .config import example_toml
+
+    path = Path(args.path)
+    if path.exists() and not args.force:
+        raise InputError(f"{path}: exists already; give another name or add --force to replace it")
+    path.write_text(example_toml(), encoding="utf-8")
+    print(f"Wrote {path.resolve()}: every setting with its default and meaning, commented out.")
+    print(f"Edit what you need, then: sightaudit run --roads ROADS --ground GROUND --config {path} --out DIR")
+    return 0
+
+
+def _validate(args) -> int:
+    from .checks import check_inputs
+    from .config import load_config
+
+    overrides = {key: getattr(args, key, None) for _, key, _, _, _ in RUN_FLAGS}
+    cfg = load_config(args.config, overrides)
+    info = check_inputs(args.roads, args.ground, cfg)
+    g = info["ground"]
+    print(f"Roads:   {info['roads_file']}")
+    print(f"         {info['roads']} road(s), {info['roads_usable_geometry']} with usable geometry, "
+          f"{info['length_km']:.2f} km in all (shortest {info['length_min_m']:.0f} m, median "
+          f"{info['length_median_m']:.0f} m, longest {info['length_max_m']:.0f} m)")
+    print(f"         CRS {info['roads_crs']}; lengths measured in {', '.join(info['working_crs'])}")
+    print("         speeds: " + ", ".join(f"{k} {v}" for k, v in info["speed"].items()))
+    print(f"Ground:  {info['ground_file']}")
+    if g["kind"] == "dem":
+        print(f"         DEM, CRS {g['crs']}, cells {g['cell_size'][0]:g} x {g['cell_size'][1]:g}, "
+              f"{g['size'][0]} x {g['size'][1]} cells, nodata {g['nodata']}")
+    else:
+        print(f"         ground points ({g['mode']}), {g['rows']} rows")
+    print(f"         ground data cover {info['ground_coverage_pct']:.1f} % of the road length")
+    if info["problems"]:
+        print(f"Problems ({len(info['problems'])}):")
+        for p in info["problems"]:
+            print(f"  - {p}")
+    else:
+        print("Problems: none found")
+    print("The inputs can be audited: sightaudit run --roads ... --ground ... --out DIR")
     return 0
 
 
@@ -198,15 +286,22 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if args.command == "run":
             overrides = {key: getattr(args, key) for _, key, _, _, _ in RUN_FLAGS}
+            overrides["output.profiles_pdf"] = getattr(args, "output.profiles_pdf", None)
             return _run(args, args.roads, args.ground, overrides, args.config)
         if args.command == "criteria":
             return _criteria(args)
+        if args.command == "init":
+            return _init(args)
+        if args.command == "validate":
+            return _validate(args)
         if args.command == "demo":
             from .resources import sample_paths
 
             paths = sample_paths()
             return _run(args, str(paths["roads"]), str(paths["dem"]), {"structures.file": str(paths["structures"]),
-                                                                       "junctions.file": str(paths["junctions"])},
+                                                                       "junctions.file": str(paths["junctions"]),
+                                                                       "output.profiles_pdf": getattr(
+                                                                           args, "output.profiles_pdf", None)},
                         None)
     except InputError as err:
         print(f"sightaudit: error: {err}", file=sys.stderr)

@@ -65,6 +65,13 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "default_length_m": (30.0, "length masked around a structure given as a point (m)"),
         "max_offset_m": (25.0, "a structure further than this from a road's centreline is not on that road (m)"),
     },
+    "output": {
+        "units": ("metric", "'metric' (m, km/h) or 'us' (ft, mph): speeds are read and every result written in these "
+                            "units; 'us' also judges with aashto-2018-us unless criteria.set says otherwise"),
+        "us_foot": ("ft", "foot of US customary output: 'ft' (international) or 'us_ft' (US survey)"),
+        "report_curves": (50, "deficient curves given a page of their own in report.html (in rank order)"),
+        "profiles_pdf": (False, "also write profiles.pdf, one long profile per road for the field team"),
+    },
     "criteria": {
         "set": ("aashto-2018-metric", "criteria set to judge against (sightaudit criteria lists them)"),
         "grade_adjusted": (False, "required SSD on the grade of each station rather than level (as the K tables assume)"),
@@ -171,6 +178,14 @@ def _check_value(key: str, value: Any, source: str) -> None:
     elif key in ("profile.step_m", "sight.fine_step_m", "ground.max_offset_m", "profile.max_gap_m",
                  "inventory.aadt_ref", "speed.desired_kmh", "plan.smooth_m", "plan.max_radius_m") and not value > 0:
         bad("must be positive")
+    elif key == "output.units" and value not in ("metric", "us"):
+        bad("must be 'metric' or 'us'")
+    elif key == "output.us_foot" and value not in ("ft", "us_ft"):
+        bad("must be 'ft' (international foot) or 'us_ft' (US survey foot)")
+    elif key == "output.report_curves" and value < 0:
+        bad("must not be negative")
+    elif key == "ground.elevation_unit" and value not in ("m", "ft", "us_ft"):
+        bad("must be 'm', 'ft' (international foot) or 'us_ft' (US survey foot)")
     elif key == "speed.source" and value not in ("attribute", "predicted"):
         bad("must be 'attribute' or 'predicted'")
     elif key == "plan.e_max_pct" and not 0 <= value <= 20:
@@ -183,6 +198,7 @@ class Config:
     def __init__(self, values: dict[str, dict[str, Any]] | None = None, source: str = "defaults"):
         self._values = {s: {k: v[0] for k, v in keys.items()} for s, keys in SPEC.items()}
         self.source = source
+        self.explicit: set[str] = set()  # keys set by a file or a flag, not left at their default
         if values:
             self.update(values, source)
 
@@ -205,6 +221,7 @@ class Config:
                     value = default | value if section == "inventory" else value
                 _check_value(f"{section}.{key}", value, source)
                 self._values[section][key] = value
+                self.explicit.add(f"{section}.{key}")
 
     def set(self, dotted: str, value: Any, source: str = "command line") -> None:
         section, _, key = dotted.partition(".")
@@ -219,6 +236,26 @@ class Config:
 
     def as_dict(self) -> dict[str, dict[str, Any]]:
         return {s: dict(k) for s, k in self._values.items()}
+
+    def copy_with(self, values: dict[str, Any]) -> "Config":
+        """A copy with some settings changed (``{"section.key": value}``)."""
+        import copy
+
+        other = copy.deepcopy(self)
+        for dotted, value in values.items():
+            other.set(dotted, value, "internal")
+        return other
+
+    def apply_unit_defaults(self) -> None:
+        """With US customary units, settings left at their default follow: the criteria set
+        becomes aashto-2018-us, the speed column speed_mph, and ground elevations feet."""
+        if self["output.units"] != "us":
+            return
+        for key, value in (("criteria.set", "aashto-2018-us"), ("roads.speed_column", "speed_mph"),
+                           ("ground.elevation_unit", "ft")):
+            if key not in self.explicit:
+                section, _, name = key.partition(".")
+                self._values[section][name] = value
 
 
 def load_config(path: str | Path | None = None, overrides: dict[str, Any] | None = None) -> Config:
@@ -237,4 +274,35 @@ def load_config(path: str | Path | None = None, overrides: dict[str, Any] | None
     for dotted, value in (overrides or {}).items():
         if value is not None:
             cfg.set(dotted, value)
+    cfg.apply_unit_defaults()
     return cfg
+
+
+def _toml_value(v: Any) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, (int, float)):
+        return repr(v)
+    if isinstance(v, str):
+        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(v, list):
+        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    if isinstance(v, dict):
+        return "{ " + ", ".join(f"{k} = {_toml_value(x)}" for k, x in v.items()) + " }" if v else "{}"
+    raise TypeError(type(v))
+
+
+def example_toml() -> str:
+    """A commented config file holding every setting at its default (``sightaudit init``)."""
+    lines = ["# sightaudit settings. Every setting is listed, commented out, at its default:",
+             "# remove the leading '# ' of the ones you change. Lengths in metres and speeds in km/h",
+             "# unless the key's name says otherwise. With output.units = \"us\", the criteria set, the",
+             "# speed column and the elevation unit follow (aashto-2018-us, speed_mph, ft) unless set here.",
+             "# Use with: sightaudit run --roads ROADS --ground GROUND --config this-file.toml --out DIR", ""]
+    for section, keys in SPEC.items():
+        lines.append(f"[{section}]")
+        for key, (default, text) in keys.items():
+            lines.append(f"## {text}")
+            lines.append(f"# {key} = {_toml_value(default)}")
+        lines.append("")
+    return "\n".join(lines)

@@ -155,6 +155,18 @@ COLUMN_NOTES = {
 }
 
 
+def column_note(col: str, units=None) -> str | None:
+    """What a column holds, in the units it is written in."""
+    if units is not None and units.us:
+        internal = col[:-3] + "_m" if col.endswith("_ft") else col[:-4] + "_kmh" if col.endswith("_mph") else col
+        note = COLUMN_NOTES.get(internal)
+        if note:
+            note = note.replace("(m)", f"({units.length_label})").replace("(km/h)", "(mph)").replace(
+                "m per %", f"{units.length_label} per %").replace("km/h", "mph")
+        return note
+    return COLUMN_NOTES.get(col)
+
+
 def _round(frame: pd.DataFrame) -> pd.DataFrame:
     """Round for reading: metres to the millimetre, grades to 1e-4 %, K to 0.01, speeds and
     scores to 0.1."""
@@ -170,8 +182,10 @@ def _round(frame: pd.DataFrame) -> pd.DataFrame:
             out[col] = out[col].round(1)
         elif col.startswith("f_"):
             out[col] = out[col].round(3)
-        elif col.endswith("_m"):
+        elif col.endswith(("_m", "_ft")):
             out[col] = out[col].round(3)
+        elif col.endswith("_mph"):
+            out[col] = out[col].round(1)
     return out
 
 
@@ -191,7 +205,7 @@ def deficiencies_table(inventory: pd.DataFrame) -> pd.DataFrame:
 
 
 def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[tuple[str, str]],
-               summary_lines: list[tuple[str, str]]) -> None:
+               summary_lines: list[tuple[str, str]], units=None) -> None:
     """A workbook for the asset-management spreadsheet: a summary sheet, one sheet per table
     (frozen header row, column widths to fit, a note on each header cell saying what it holds
     and its unit) and a method sheet with the criteria set's source and the cautions."""
@@ -231,7 +245,7 @@ def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[t
         sh = wb.add_worksheet(name)
         for j, col in enumerate(frame.columns):
             sh.write(0, j, col, head)
-            note = COLUMN_NOTES.get(col)
+            note = column_note(col, units)
             if note:
                 sh.write_comment(0, j, note, {"x_scale": 2})
             values = frame[col]
@@ -275,7 +289,7 @@ def _substring(line, start: float, end: float):
 
 
 def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame,
-               hcurves: pd.DataFrame) -> None:
+               hcurves: pd.DataFrame, units=None) -> None:
     """Layers ``roads``, ``curves`` (PVC-PVT lines), ``deficiencies`` (the deficient
     stretches, cut from the centreline by chainage and drawn half a station beyond their end
     stations) and ``horizontal_curves``, all in the roads' CRS."""
@@ -286,8 +300,9 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     t = roads.table.set_index("road_id", drop=False)
     crs = roads.source_crs
     step = result.step_m
+    conv = (lambda f: _round(units.table(f))) if units is not None else (lambda f: f)
     road_attrs = result.road_table()
-    gpd.GeoDataFrame(road_attrs, geometry=list(t["geometry_src"].reindex(road_attrs["road_id"])), crs=crs) \
+    gpd.GeoDataFrame(conv(road_attrs), geometry=list(t["geometry_src"].reindex(road_attrs["road_id"])), crs=crs) \
         .to_file(path, layer="roads", driver="GPKG", engine="pyogrio")
 
     back = {k: roads.to_source(k) if roads.work_crs[k] is not crs else None for k in roads.work_crs}
@@ -301,13 +316,14 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
         return seg
 
     cg = [cut(r.road_id, r.pvc_m, r.pvt_m) for r in curves.itertuples()]
-    gpd.GeoDataFrame(curves, geometry=cg, crs=crs).to_file(path, layer="curves", driver="GPKG", engine="pyogrio")
+    gpd.GeoDataFrame(conv(curves), geometry=cg, crs=crs).to_file(path, layer="curves", driver="GPKG",
+                                                                 engine="pyogrio")
     dg = [cut(r.road_id, r.from_m - step / 2, r.to_m + step / 2) for r in deficiencies.itertuples()]
-    gpd.GeoDataFrame(deficiencies, geometry=dg, crs=crs).to_file(path, layer="deficiencies", driver="GPKG",
-                                                                engine="pyogrio")
+    gpd.GeoDataFrame(conv(deficiencies), geometry=dg, crs=crs).to_file(path, layer="deficiencies", driver="GPKG",
+                                                                      engine="pyogrio")
     hg = [cut(r.road_id, r.start_m, r.end_m) for r in hcurves.itertuples()]
-    gpd.GeoDataFrame(hcurves, geometry=hg, crs=crs).to_file(path, layer="horizontal_curves", driver="GPKG",
-                                                           engine="pyogrio")
+    gpd.GeoDataFrame(conv(hcurves), geometry=hg, crs=crs).to_file(path, layer="horizontal_curves", driver="GPKG",
+                                                                 engine="pyogrio")
 
 
 def method_lines(result, cfg) -> list[tuple[str, str]]:
@@ -351,33 +367,46 @@ CAUTION_TEXT = ("Screening results only. Every finding must be confirmed by fiel
 
 
 def write_outputs(folder: Path, result, summary: dict, cfg) -> None:
-    """Every output file of the run, into ``folder``."""
+    """Every output file of the run, into ``folder``, in the run's units."""
+    from .report import build_report, write_profiles_pdf
+    from .units import OutputUnits
+
+    units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
     ev = result.evaluation
     curves = curves_table(ev.curves)
     defs = deficiencies_table(ev.inventory)
     hcurves = _round(horizontal_table(result, cfg))
-    hcurves.to_csv(folder / "horizontal_curves.csv", index=False)
-    write_profiles(folder / "profiles.parquet", result.profiles)
-    curves.to_csv(folder / "curves.csv", index=False)
-    defs.to_csv(folder / "deficiencies.csv", index=False)
     roads = result.road_table()
     notes = result.data_notes()
-    roads.to_csv(folder / "roads.csv", index=False)
-    notes.to_csv(folder / "data_notes.csv", index=False)
+    out = {name: _round(units.table(frame)) for name, frame in
+           (("curves", curves), ("deficiencies", defs), ("hcurves", hcurves), ("roads", roads), ("notes", notes),
+            ("summary", ev.summary))}
+    write_profiles(folder / "profiles.parquet", units.table(result.profiles))
+    out["curves"].to_csv(folder / "curves.csv", index=False)
+    out["deficiencies"].to_csv(folder / "deficiencies.csv", index=False)
+    out["hcurves"].to_csv(folder / "horizontal_curves.csv", index=False)
+    out["roads"].to_csv(folder / "roads.csv", index=False)
+    out["notes"].to_csv(folder / "data_notes.csv", index=False)
     r = summary["roads"]
     summary_lines = [
         ("Caution", CAUTION_TEXT),
         ("Criteria set", f"{result.criteria.params['name']} ({result.criteria.params['title']})"),
+        ("Units", f"lengths {units.length_label}, speeds {units.speed_label}, K in {units.length_label} per %"),
         ("Roads", f"{r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped (see the Roads sheet)"),
         ("Curves", f"{len(curves)} found, {int(curves['deficient'].sum())} deficient"),
         ("Deficient stretches", f"{len(defs)} (ranked in the Deficiencies sheet; rank 1 first to fix)"),
         ("Run", f"sightaudit {summary['version']}, {summary['started_utc']}"),
     ]
+    method = method_lines(result, cfg)
     write_xlsx(folder / "deficiencies.xlsx",
-               {"_summary": _round(ev.summary), "Deficiencies": defs, "Curves": curves,
-                "Horizontal curves": hcurves, "Roads": roads, "Data notes": notes},
-               method_lines(result, cfg), summary_lines)
-    write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves)
+               {"_summary": out["summary"], "Deficiencies": out["deficiencies"], "Curves": out["curves"],
+                "Horizontal curves": out["hcurves"], "Roads": out["roads"], "Data notes": out["notes"]},
+               method, summary_lines, units)
+    write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves, units)
+    (folder / "report.html").write_text(build_report(result, summary, cfg, units, CAUTION_TEXT, method),
+                                        encoding="utf-8")
+    if cfg["output.profiles_pdf"]:
+        write_profiles_pdf(folder / "profiles.pdf", result, units)
 
 
 def horizontal_table(result, cfg) -> pd.DataFrame:

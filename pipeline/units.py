@@ -34,3 +34,61 @@ def metres_per(unit: str) -> float:
 def kmh_per_mph() -> float:
     """km/h in one mph: the statute mile (1609.344 m, from PROJ's unit table) per hour."""
     return float(pyproj.get_units_map(category="linear")["Statute mile"].conv_factor) / 1000.0
+
+
+class OutputUnits:
+    """How results are written: metric (m, km/h, km) or US customary (ft, mph, mi).
+
+    Column names carry the unit: in US customary output ``*_m`` becomes ``*_ft``,
+    ``*_kmh`` becomes ``*_mph`` and ``*km*`` becomes ``*mi*``, with the values converted;
+    K (``k``, ``k_required``) becomes feet per percent. The foot is the international foot
+    unless ``us_ft`` (US survey foot) is asked for.
+    """
+
+    def __init__(self, system: str = "metric", foot: str = "ft"):
+        if system not in ("metric", "us"):
+            raise InputError(f"unknown units {system!r}; use 'metric' or 'us'")
+        self.system = system
+        self.us = system == "us"
+        self.length_name = foot if self.us else "m"
+        self.m_per_length = metres_per(foot) if self.us else 1.0
+        self.kmh_per_speed = kmh_per_mph() if self.us else 1.0
+        self.km_per_distance = (metres_per("ft") * 5280 / 1000.0) if self.us else 1.0  # statute mile
+        self.length_suffix = "_ft" if self.us else "_m"
+        self.speed_suffix = "_mph" if self.us else "_kmh"
+        self.length_label = "ft" if self.us else "m"
+        self.speed_label = "mph" if self.us else "km/h"
+        self.distance_label = "mi" if self.us else "km"
+
+    def length(self, metres):
+        return metres / self.m_per_length
+
+    def speed(self, kmh):
+        return kmh / self.kmh_per_speed
+
+    def column(self, name: str) -> str:
+        """The output name of an internal (metric) column."""
+        if not self.us:
+            return name
+        if name.endswith("_m"):
+            return name[:-2] + "_ft"
+        if name.endswith("_kmh"):
+            return name[:-4] + "_mph"
+        if name.startswith("km_") or "_km_" in name or name.endswith("_km"):
+            return name.replace("km", "mi")
+        return name
+
+    def table(self, frame):
+        """A copy of ``frame`` with its columns renamed and converted to these units."""
+        if not self.us:
+            return frame.copy()
+        out = frame.copy()
+        for col in frame.columns:
+            new = self.column(col)
+            if col.endswith("_m") or col in ("k", "k_required"):
+                out[col] = frame[col] / self.m_per_length if frame[col].dtype.kind in "fiu" else frame[col]
+            elif col.endswith("_kmh"):
+                out[col] = frame[col] / self.kmh_per_speed if frame[col].dtype.kind in "fiu" else frame[col]
+            elif new != col:  # km columns
+                out[col] = frame[col] / self.km_per_distance if frame[col].dtype.kind in "fiu" else frame[col]
+        return out.rename(columns={c: self.column(c) for c in frame.columns})

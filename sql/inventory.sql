@@ -68,7 +68,7 @@ WITH scored AS (
     LEFT JOIN hazards h USING (road_id, curve_no, direction)
     CROSS JOIN params p
 )
-SELECT row_number() OVER (ORDER BY priority_score DESC, shortfall_m DESC, road_id, from_m) AS rank,
+SELECT row_number() OVER (ORDER BY priority_score DESC, shortfall_m DESC, road_id, from_m, direction) AS rank,
        road_id, curve_no, kind, direction, from_m, to_m, speed_kmh, supported_speed_kmh,
        ssd_required_m, sight_available_m, shortfall_m, k, k_required, aadt, priority_score,
        severity, hidden_hazard, hazard_chainage_m, hazard_detail, hidden_from_m, hidden_to_m,

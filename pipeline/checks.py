@@ -1,0 +1,81 @@
+"""Check the inputs of an audit without running it (``sightaudit validate``).
+
+Reads the roads and the ground model as a run would, and reports what it found:
+roads, CRS, lengths, speed coverage, how much of the road length the ground data
+cover, and the problems a run would meet (roads it would skip, and why).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .config import Config
+
+
+def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25.0) -> dict:
+    """What a run would find in the inputs. File-level faults raise ``InputError`` as in a run."""
+    from .batch import GroundSampler, resolve_speeds
+    from .ingest import DemGround, open_ground, read_roads
+    from .profile import station_chainages
+
+    roads = read_roads(roads_path, cfg)
+    ground = open_ground(ground_path, cfg, roads)
+    t = roads.table
+    speed, basis, reason = resolve_speeds(t, cfg)
+    ok = t["skip_reason"].isna() | ~t["skip_reason"].map(lambda v: isinstance(v, str))
+    lengths = t.loc[ok, "length_m"].to_numpy(dtype=float)
+    problems: list[str] = []
+    for rid, why in zip(t["road_id"], t["skip_reason"]):
+        if isinstance(why, str):
+            problems.append(f"road {rid}: {why} (would be skipped)")
+    for rid, why in zip(t["road_id"], reason):
+        if isinstance(why, str):
+            problems.append(f"road {rid}: {why} (would be skipped)")
+    problems += roads.notes
+
+    # ground coverage: stations every sample_step_m on every usable road
+    sampler = GroundSampler(ground, roads, cfg)
+    covered = total = 0.0
+    no_ground = []
+    sub = cfg.copy_with({"profile.step_m": sample_step_m})
+    sampler.cfg = sub
+    for _, row in t[ok].iterrows():
+        st = station_chainages(row["length_m"], sample_step_m)
+        z, _, _ = sampler.sample(row["geometry"], row["work_key"], row["source_id"], st)
+        have = np.isfinite(z)
+        covered += have.sum() * sample_step_m
+        total += len(st) * sample_step_m
+        if not have.any():
+            no_ground.append(row["road_id"])
+    for rid in no_ground:
+        problems.append(f"road {rid}: no ground data along it (would be skipped)")
+    problems += sampler.notes
+    kinds: dict[str, int] = {}
+    for b in basis:
+        if isinstance(b, str):
+            key = "class default" if b.startswith("class default") else b
+            kinds[key] = kinds.get(key, 0) + 1
+    kinds["none (road skipped)"] = int(sum(isinstance(r, str) for r in reason))
+    info = {
+        "roads_file": str(roads.path),
+        "roads_crs": roads.source_crs.name,
+        "working_crs": sorted({c.name for c in roads.work_crs.values()}),
+        "roads": int(len(t)),
+        "roads_usable_geometry": int(ok.sum()),
+        "length_km": float(lengths.sum() / 1000.0) if len(lengths) else 0.0,
+        "length_min_m": float(lengths.min()) if len(lengths) else 0.0,
+        "length_median_m": float(np.median(lengths)) if len(lengths) else 0.0,
+        "length_max_m": float(lengths.max()) if len(lengths) else 0.0,
+        "speed": {k: v for k, v in kinds.items() if v},
+        "ground_file": str(ground.path),
+        "ground": ground.describe(),
+        "ground_coverage_pct": 100.0 * covered / total if total else 0.0,
+        "problems": problems,
+    }
+    if isinstance(ground, DemGround):
+        import rasterio
+
+        with rasterio.open(ground.path) as src:
+            info["ground"]["cell_size"] = [abs(src.res[0]), abs(src.res[1])]
+            info["ground"]["size"] = [src.width, src.height]
+    return info
