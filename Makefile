@@ -26,6 +26,9 @@ demo: $(VENV)/.installed
 test: $(VENV)/.installed-test
 	$(BIN)/python -m pytest -q
 
+bench: $(VENV)/.installed
+	$(BIN)/python benchmarks/throughput.py --readme
+
 bench-accuracy: $(VENV)/.installed
 	$(BIN)/python benchmarks/alignment_accuracy.py
 

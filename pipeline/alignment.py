@@ -36,10 +36,11 @@ Method, in order:
    Statistics* 6(2) 461-464). A PVI whose grade change is below
    ``min_grade_change_pct`` is removed regardless.
 5. **Joint refinement** of all PVI chainages, elevations and curve lengths by
-   nonlinear least squares (``scipy.optimize.least_squares``, trust region
-   reflective, analytic Jacobian), the curves kept within the road and apart by
-   bounds and a penalty; remaining overlaps are closed by shortening both
-   curves, and the elevations re-solved.
+   nonlinear least squares (Levenberg-Marquardt with the analytic Jacobian, in
+   overlapping blocks of ten PVIs along long roads;
+   ``scipy.optimize.least_squares`` for larger problems), the curves kept within
+   the road and apart by bounds and a penalty; remaining overlaps are closed by
+   shortening both curves, and the elevations re-solved.
 
 Per curve: kind (crest where G2 < G1), PVC/PVI/PVT, G1, G2, A, L, K = L/A, the
 turning point where it falls on the curve (x = -g1 L / (g2 - g1) from the PVC),
@@ -105,11 +106,19 @@ def _ascending(fn):
     return wrapper
 
 
+def _segment(X: np.ndarray, xs: np.ndarray) -> np.ndarray:
+    """Index of the tangent (between PVIs k and k + 1) each chainage falls on."""
+    k = np.searchsorted(X, xs, side="right") - 1
+    np.minimum(k, len(X) - 2, out=k)
+    np.maximum(k, 0, out=k)
+    return k
+
+
 @_ascending
 def model_z(X: np.ndarray, Y: np.ndarray, L: np.ndarray, xs: np.ndarray) -> np.ndarray:
     """Elevation (m) of the alignment at chainages ``xs`` (m, any order); see module notes."""
-    G = np.diff(Y) / np.diff(X)
-    k = np.clip(np.searchsorted(X, xs, side="right") - 1, 0, len(G) - 1)
+    G = (Y[1:] - Y[:-1]) / (X[1:] - X[:-1])
+    k = _segment(X, xs)
     z = Y[k] + G[k] * (xs - X[k])
     dG = np.diff(G)
     for i in np.flatnonzero(L[1:-1] > 0) + 1:
@@ -168,8 +177,10 @@ def design_dense(X: np.ndarray, L: np.ndarray, xs: np.ndarray) -> tuple[np.ndarr
     array operations whatever the number of curves. Also returns the curve-coefficient matrix
     ``C`` (nv x nv): row i holds d(G_i - G_{i-1})/dY."""
     nv, n = len(X), len(xs)
-    D = np.diff(X)
-    k = np.clip(np.searchsorted(X, xs, side="right") - 1, 0, nv - 2)
+    D = X[1:] - X[:-1]
+    k = np.searchsorted(X, xs, side="right") - 1
+    np.minimum(k, nv - 2, out=k)
+    np.maximum(k, 0, out=k)
     t = (xs - X[k]) / D[k]
     r = np.arange(n)
     phi = np.zeros((n, nv))
@@ -177,13 +188,15 @@ def design_dense(X: np.ndarray, L: np.ndarray, xs: np.ndarray) -> tuple[np.ndarr
     phi[r, k + 1] = t
     C = np.zeros((nv, nv))
     i = np.arange(1, nv - 1)
-    C[i, i - 1] = 1 / D[i - 1]
-    C[i, i] = -1 / D[i - 1] - 1 / D[i]
-    C[i, i + 1] = 1 / D[i]
-    Ls = np.where(L > 0, L, 1.0)
-    q = np.maximum(L[None, :] / 2 - np.abs(xs[:, None] - X[None, :]), 0.0)
-    W = np.where(L[None, :] > 0, q * q / (2 * Ls[None, :]), 0.0)
-    return phi + W @ C, C
+    inv = 1.0 / D
+    C[i, i - 1] = inv[:-1]
+    C[i, i] = -inv[:-1] - inv[1:]
+    C[i, i + 1] = inv[1:]
+    cv = np.flatnonzero(L > 0)
+    if len(cv):
+        q = np.maximum(L[cv] / 2 - np.abs(xs[:, None] - X[cv]), 0.0)
+        phi += (q * q / (2 * L[cv])) @ C[cv]
+    return phi, C
 
 
 def design_batch(Xs: np.ndarray, Ls: np.ndarray, xs: np.ndarray) -> np.ndarray:
@@ -610,33 +623,54 @@ class _Fitter:
     def removal_is_hopeless(self, X, Y, L, i) -> bool:
         """True when removing PVI ``i`` certainly costs more than the price: a bend of grade
         change dG between arms of length l leaves at least n dG^2 l^2 / 48 of squared residual
-        (variance of |u| on [-l, l] times (dG/2)^2), taken with a wide margin."""
-        if L[i] > 0:
-            return False
+        (variance of |u| on [-l, l] times (dG/2)^2), taken with a wide margin; the arms are
+        counted from the ends of the PVI's curve."""
         G = np.diff(Y) / np.diff(X)
-        arm = min(X[i] - X[i - 1], X[i + 1] - X[i])
+        arm = min(X[i] - X[i - 1], X[i + 1] - X[i]) - L[i] / 2
+        if arm <= 0:
+            return False
         lo, hi = np.searchsorted(self.xs, [X[i] - arm, X[i] + arm])
         est = (hi - lo) * (G[i] - G[i - 1]) ** 2 * arm**2 / 48.0
         return est > 30.0 * self.price
 
+    def merge_is_hopeless(self, X, L, i) -> bool:
+        """True when PVIs ``i`` and ``i + 1`` are separated by a tangent much longer than their
+        curves: one curve cannot stand for a long straight between two bends."""
+        tangent = (X[i + 1] - L[i + 1] / 2) - (X[i] + L[i] / 2)
+        return tangent > 3.0 * max(L[i], L[i + 1]) + 4.0 * self.opts["bin_m"]
+
     def coalesce(self, X, Y, L):
         """Replace each run of two or more PVIs bending the same way by one curve where that
-        passes the information criterion (a long curve first segmented as several chords)."""
+        passes the information criterion (a long curve first segmented as several chords). A run
+        that cannot be one curve is split at its longest chord (most likely the tangent between
+        two curves) and each part tried in turn."""
+        dG = np.diff(np.diff(Y) / np.diff(X))
+        sgn = np.sign(dG)
+        runs = []
         i = 1
-        while i < len(X) - 2:
-            dG = np.diff(np.diff(Y) / np.diff(X))
-            sgn = np.sign(dG)
+        while i < len(X) - 1:
             j = i
             while j + 1 <= len(X) - 2 and sgn[j] == sgn[i - 1]:
                 j += 1
-            if j - i >= 1:
-                d, model = self.merge(X, Y, L, i, j)
-                if model is not None and d < self.price:
-                    X, Y, L = model
-                    i += 1
-                    continue
+            if j > i:
+                runs.append((i, j))
             i = j + 1
+        # right to left, so that merging a run leaves the indices of the runs before it valid
+        for i, j in reversed(runs):
+            X, Y, L = self._coalesce_run(X, Y, L, i, j)
         return X, Y, L
+
+    def _coalesce_run(self, X, Y, L, i, j, depth: int = 0):
+        if j <= i:
+            return X, Y, L
+        d, model = self.merge(X, Y, L, i, j)
+        if model is not None and d < self.price:
+            return model
+        if depth >= 6 or j - i < 2:
+            return X, Y, L
+        k = i + int(np.argmax(np.diff(X[i:j + 1])))  # longest chord lies between k and k + 1
+        X, Y, L = self._coalesce_run(X, Y, L, k + 1, j, depth + 1)
+        return self._coalesce_run(X, Y, L, i, k, depth + 1)
 
     def select(self, X, Y, L, place: bool = False):
         """Greedy removal and merging of PVIs while the information criterion improves.
@@ -666,7 +700,8 @@ class _Fitter:
                     rem[i] = np.inf if self.removal_is_hopeless(X, Y, L, i) else self.removal(X, Y, L, i)[0]
                 if mer[i] is None:
                     same = i + 1 <= nv - 2 and np.sign(dG[i - 1]) == np.sign(dG[i])
-                    mer[i] = self.merge(X, Y, L, i, place=place)[0] if same else np.inf
+                    hopeless = not same or self.merge_is_hopeless(X, L, i)
+                    mer[i] = np.inf if hopeless else self.merge(X, Y, L, i, place=place)[0]
             r, m = np.array(rem[1:nv - 1]), np.array(mer[1:nv - 1])
             if min(r.min(), m.min()) >= self.price:
                 break
@@ -717,7 +752,7 @@ class _Fitter:
         start = 0
         while start < nv - 2:
             end = min(start + block + 1, nv - 1)
-            _, model = self.local_nls(X, Y, L, start, end, max_nfev=40, ftol=1e-9)
+            _, model = self.local_nls(X, Y, L, start, end, max_nfev=25, ftol=1e-7)
             if model is not None:
                 X, Y, L = model
             if end >= nv - 1:
@@ -742,6 +777,47 @@ class _Fitter:
             L[0] = L[-1] = 0.0
         Y, _ = _solve_y(X, L, self.xs, self.zs)
         return X, Y, L
+
+
+def levenberg_marquardt(fun, jac, p0, lb, ub, max_nfev: int = 40, ftol: float = 1e-9, xtol: float = 1e-10):
+    """Least squares by Levenberg-Marquardt (Marquardt 1963, *J. SIAM* 11(2) 431-441) with
+    Marquardt's diagonal scaling and steps clipped to the bounds, for the small dense problems
+    of the alignment. ``fun(p)`` gives residuals, ``jac(p)`` their (dense) Jacobian.
+    Returns the parameters and the residuals there."""
+    p = np.clip(np.asarray(p0, dtype=float), lb, ub)
+    r = fun(p)
+    cost = float(r @ r)
+    lam = 1e-3
+    nfev = 1
+    while nfev < max_nfev:
+        J = jac(p)
+        A = J.T @ J
+        g = J.T @ r
+        d = np.maximum(np.diag(A), 1e-12)
+        improved = False
+        while nfev < max_nfev:
+            try:
+                step = np.linalg.solve(A + lam * np.diag(d), -g)
+            except np.linalg.LinAlgError:
+                lam *= 10.0
+                continue
+            p_new = np.clip(p + step, lb, ub)
+            r_new = fun(p_new)
+            nfev += 1
+            cost_new = float(r_new @ r_new)
+            if np.isfinite(cost_new) and cost_new <= cost:
+                moved = np.max(np.abs(p_new - p) / (np.abs(p) + 1.0))
+                done = cost - cost_new <= ftol * max(cost, 1e-300) or moved <= xtol
+                p, r, cost = p_new, r_new, cost_new
+                lam = max(lam / 3.0, 1e-12)
+                improved = True
+                break
+            lam *= 4.0
+            if lam > 1e12:
+                break
+        if not improved or done:
+            break
+    return p, r
 
 
 def nls_fit(X, Y, L, xs, zs, free_x, free_y, free_l, max_nfev: int = 40, ftol: float = 1e-9):
@@ -785,11 +861,14 @@ def nls_fit(X, Y, L, xs, zs, free_x, free_y, free_l, max_nfev: int = 40, ftol: f
         Xp, Yp, Lp = unpack(p)
         return _jacobian(Xp, Yp, Lp, xs, free_x, free_y, free_l, rho, dense=dense)
 
-    res = least_squares(fun, p0, jac=jac, bounds=(lb, ub), method="trf", x_scale="jac",
-                        ftol=ftol, xtol=1e-10, gtol=1e-10, max_nfev=max_nfev,
-                        tr_solver="exact" if dense else "lsmr")
-    Xp, Yp, Lp = unpack(res.x)
-    r = res.fun[: len(xs)]
+    if dense:
+        x_opt, resid = levenberg_marquardt(fun, jac, p0, lb, ub, max_nfev=max_nfev, ftol=ftol)
+    else:
+        res = least_squares(fun, p0, jac=jac, bounds=(lb, ub), method="trf", x_scale="jac",
+                            ftol=ftol, xtol=1e-10, gtol=1e-10, max_nfev=max_nfev, tr_solver="lsmr")
+        x_opt, resid = res.x, res.fun
+    Xp, Yp, Lp = unpack(x_opt)
+    r = resid[: len(xs)]
     return Xp, Yp, Lp, float(r @ r)
 
 
@@ -864,6 +943,17 @@ class RoadProfile:
         self.stretches = stretches
         self.starts = np.array([a.x[0] for a in stretches])
         self.ends = np.array([a.x[-1] for a in stretches])
+        self._grid = None
+
+    def z_grid(self, x, step_m: float = 1.0):
+        """Elevation by linear interpolation in a table of the alignment every ``step_m``
+        (computed once): for the many look-ups of the hazard stage, where a few millimetres
+        do not matter."""
+        if self._grid is None:
+            g = np.arange(self.starts.min(), self.ends.max() + step_m, step_m)
+            self._grid = (g, self.z(g))
+        g, zg = self._grid
+        return np.interp(x, g, zg, left=np.nan, right=np.nan)
 
     def _each(self, x, fn):
         x = np.asarray(x, dtype=float)

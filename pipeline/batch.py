@@ -1,30 +1,40 @@
-"""Run the audit over a road network and account for every road.
+"""Run the audit over a road network, in chunks, and account for every road.
 
-The per-road stages never depend on another road. Each road ends either
-``evaluated`` or ``skipped`` with a reason; the run checks at the end that
-roads in = roads evaluated + roads skipped, and records all of it in
-``run.json``.
+The per-road stages (:mod:`pipeline.roadwork`) never depend on another road, so the
+network is cut into chunks of roads (``run.chunk_km`` of road each) that run one after the
+other in this process, in a pool of processes (``run.workers``, default all cores) or on a
+Dask cluster (``run.engine = "dask"``). Each chunk's results are written to Parquet files in a
+work folder as soon as they exist, so memory holds one chunk per worker, not the network;
+DuckDB then judges the curves and builds the inventory straight from those files. A run that
+is interrupted and started again with ``--resume`` reuses the chunks already finished.
+
+Each road ends either ``evaluated`` or ``skipped`` with a reason; the run checks that
+roads in = roads evaluated + roads skipped, and records all of it in ``run.json``.
 """
 
 from __future__ import annotations
 
 import contextlib
+import hashlib
+import json
+import os
+import shutil
+import tempfile
 import time
+import weakref
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 
+import duckdb
 import numpy as np
 import pandas as pd
 
 from . import __version__
 from .config import Config
-from .ingest import (DemGround, PointGround, Roads, file_sha256, is_ballpark, open_ground, read_dem_window,
-                     read_roads, transformer)
-from .profile import (FILLED, FLAG_NAMES, MASKED, MISSING, bilinear, locate_points, points_along, regularise,
-                      run_lengths, station_chainages)
-
 from .export import CAUTION_TEXT as CAUTION
+from .ingest import PointGround, Roads, file_sha256, open_ground, read_roads
+from .roadwork import HAZARD_COLUMNS, PREDICTED, Job, process_chunk
 
 
 # --------------------------------------------------------------------- progress
@@ -39,247 +49,7 @@ class Progress:
         pass
 
 
-# ---------------------------------------------------------------- per road
-@dataclass
-class RoadOutcome:
-    road_id: str
-    status: str = "evaluated"
-    reason: str | None = None
-    notes: list[tuple[str, float | None, float | None, str]] = field(default_factory=list)
-    profile: pd.DataFrame | None = None
-    curves: pd.DataFrame | None = None
-    keypoints: pd.DataFrame | None = None
-    hcurves: pd.DataFrame | None = None
-    hazards: pd.DataFrame | None = None
-    seconds: dict[str, float] = field(default_factory=dict)
-
-    def skip(self, reason: str) -> "RoadOutcome":
-        self.status, self.reason = "skipped", reason
-        return self
-
-
-class GroundSampler:
-    """Ground elevation along one road at a time, from a DEM or from ground points."""
-
-    def __init__(self, ground: DemGround | PointGround, roads: Roads, cfg: Config, structures=None,
-                 junctions=None):
-        self.ground = ground
-        self.roads = roads
-        self.cfg = cfg
-        self.structures = structures
-        self.junctions = junctions
-        self._tr: dict[str, object] = {}
-        self.points_dropped = 0
-        self.points_used = 0
-        self.notes: list[str] = []
-
-    def _to_ground(self, key: str):
-        if key not in self._tr:
-            src = self.roads.work_crs[key]
-            tr = transformer(src, self.ground.crs)
-            self._tr[key] = tr
-            tr.transform(*self._probe(key))
-            if is_ballpark(tr):
-                self.notes.append(
-                    f"transform from {src.name!r} to {self.ground.crs.name!r} has no datum-shift grid "
-                    f"(PROJ 'ballpark'); ground positions may be metres off: give both in the same datum"
-                )
-        return self._tr[key]
-
-    def structure_ranges(self, row, line) -> list:
-        if self.structures is None:
-            return []
-        from .ingest import structure_ranges
-
-        return structure_ranges(self.structures, line, self.roads.work_crs[row["work_key"]], row["road_id"],
-                                row["source_id"], self.cfg)
-
-    def junction_points(self, row) -> list:
-        """Junctions and accesses from the user's layer on this road: (chainage, label)."""
-        if self.junctions is None:
-            return []
-        from .ingest import feature_chainages
-
-        found = feature_chainages(self.junctions, row["geometry"], self.roads.work_crs[row["work_key"]],
-                                  row["road_id"], row["source_id"], self.cfg["junctions.max_offset_m"])
-        return [(lo, label) for lo, hi, _, label in found]
-
-    def _probe(self, key: str):
-        line = self.roads.table.loc[self.roads.table["work_key"] == key, "geometry"].dropna().iloc[0]
-        x, y = points_along(line, np.array([0.0]))
-        return x, y
-
-    def sample(self, line, key: str, road_id: str, stations: np.ndarray) -> tuple[np.ndarray, np.ndarray, list]:
-        # (road_id is the id as in the source files: ground points refer to it)
-        """``(z_m, flag, notes)`` at ``stations`` (chainage m)."""
-        step, max_gap = self.cfg["profile.step_m"], self.cfg["profile.max_gap_m"]
-        notes: list = []
-        if isinstance(self.ground, DemGround):
-            sx, sy = points_along(line, stations)
-            gx, gy = self._to_ground(key).transform(sx, sy)
-            gx, gy = np.asarray(gx), np.asarray(gy)
-            arr, aff = read_dem_window(self.ground, gx, gy)
-            if arr is None:
-                z = np.full(len(stations), np.nan)
-            else:
-                z = bilinear(arr, aff, gx, gy)
-            zs, flag = regularise(stations, z, stations, step, max_gap)
-            return zs, flag, notes
-        pts = self.ground.by_road.get(road_id)
-        if pts is None or len(pts) == 0:
-            return np.full(len(stations), np.nan), np.full(len(stations), MISSING, dtype=np.int8), notes
-        if self.ground.mode == "chainage":
-            chain = pts["chainage_m"].to_numpy()
-            length = float(stations[-1]) if len(stations) else 0.0
-            beyond = (chain < -step) | (chain > length + step)
-            if beyond.any():
-                notes.append(("ground points beyond the road's ends dropped", None, None, f"{int(beyond.sum())} points"))
-            chain, z = chain[~beyond], pts["z_m"].to_numpy()[~beyond]
-            self.points_used += len(chain)
-        else:
-            tr = transformer(self.ground.crs, self.roads.work_crs[key])
-            px, py = tr.transform(pts["x"].to_numpy(), pts["y"].to_numpy())
-            chain, offset = locate_points(line, np.asarray(px), np.asarray(py))
-            far = np.abs(offset) > self.cfg["ground.max_offset_m"]
-            if far.any():
-                self.points_dropped += int(far.sum())
-                notes.append(("ground points too far from the centreline dropped", None, None,
-                              f"{int(far.sum())} of {len(far)} points beyond {self.cfg['ground.max_offset_m']:g} m"))
-            chain, z = chain[~far], pts["z_m"].to_numpy()[~far]
-            self.points_used += len(chain)
-        zs, flag = regularise(chain, z, stations, step, max_gap)
-        return zs, flag, notes
-
-
-def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source) -> RoadOutcome:
-    """Stations and ground elevation for one road (the profile stage)."""
-    out = RoadOutcome(road_id=row["road_id"])
-    if isinstance(row["skip_reason"], str):
-        return out.skip(row["skip_reason"])
-    line = row["geometry"]
-    stations = station_chainages(row["length_m"], cfg["profile.step_m"])
-    z, flag, notes = sampler.sample(line, row["work_key"], row["source_id"], stations)
-    out.notes.extend(notes)
-    have = np.isfinite(z)
-    if not have.any():
-        return out.skip("no ground data along the road (off the DEM, all nodata, or no ground points)")
-    if have.sum() < 3:
-        return out.skip("fewer than 3 stations with ground data")
-    if not have.all():
-        out.notes.append(("road partly without ground data", None, None,
-                          f"ground data cover {100 * have.mean():.0f} % of the road; evaluated over that part only"))
-    # artefacts: spikes, pits, bridge or culvert dips, humps, known structures
-    from .alignment import noise_sigma
-    from .artefacts import detect, implausible_grades
-
-    known = sampler.structure_ranges(row, line)
-    mask, art_notes = detect(stations, z, cfg["profile.step_m"], noise_sigma(z), artefact_options(cfg), known)
-    out.notes.extend(art_notes)
-    flag = np.where(mask & (flag != MISSING), MASKED, flag).astype(np.int8)
-    reason = implausible_grades(stations, np.where(mask, np.nan, z), cfg["artefacts.max_road_grade_pct"])
-    if reason:
-        return out.skip(reason)
-    missing = ~have
-    if missing.any():
-        step = cfg["profile.step_m"]
-        for a, b in run_lengths(missing):
-            out.notes.append(("ground data missing", float(stations[a]), float(stations[b - 1]),
-                              f"{b - a} station(s), {(b - a) * step:g} m, without ground data; "
-                              f"not evaluated there"))
-    if (flag == FILLED).any():
-        for a, b in run_lengths(flag == FILLED):
-            out.notes.append(("short ground gap interpolated", float(stations[a]), float(stations[b - 1]),
-                              "elevations filled linearly across the gap and marked 'filled'"))
-    x, y = points_along(line, stations)
-    if to_source is not None:
-        x, y = to_source.transform(x, y)
-    out.profile = pd.DataFrame({
-        "road_id": row["road_id"],
-        "chainage_m": stations,
-        "x": np.asarray(x, dtype=float),
-        "y": np.asarray(y, dtype=float),
-        "ground_z_m": z,
-        "ground_flag": FLAG_NAMES[flag],
-    })
-    return out
-
-
-def road_alignment(out: RoadOutcome, cfg: Config) -> list:
-    """Fit the vertical alignment to a road's profile (the alignment stage); returns the
-    fitted stretches."""
-    from .alignment import fit_profile
-
-    prof = out.profile
-    usable = np.where(prof["ground_flag"].to_numpy() == "masked", np.nan, prof["ground_z_m"].to_numpy())
-    stretches, curves, fitted, grade = fit_profile(prof["chainage_m"].to_numpy(), usable,
-                                                   cfg["profile.step_m"], alignment_options(cfg))
-    prof["fitted_z_m"] = fitted
-    prof["grade_pct"] = grade * 100.0
-    curves.insert(0, "road_id", out.road_id)
-    out.curves = curves
-    return stretches
-
-
-def artefact_options(cfg: Config) -> dict:
-    return {k: cfg[f"artefacts.{k}"] for k in ("spike_m", "max_grade_pct", "min_k", "max_width_m")}
-
-
-def alignment_options(cfg: Config) -> dict:
-    return {k: cfg[f"alignment.{k}"] for k in ("min_tangent_m", "min_grade_change_pct", "split_gap_m",
-                                                "short_tangent_m", "bin_m", "noise_floor_m")}
-
-
-def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
-    """Available sight distance both ways on the fitted alignment (and, as a diagnostic, on
-    the ground profile); each curve also seen from its PVC and PVT (the sight stage)."""
-    from .alignment import RoadProfile
-    from .sight import (LIMIT_NAMES, attribute, crest_sight_formula, sag_sight_formula, sight_both_ways,
-                        sight_from)
-
-    prof, curves = out.profile, out.curves
-    ch = prof["chainage_m"].to_numpy()
-    fine = cfg["sight.fine_step_m"]
-    if len(ch) < 2 or not stretches:
-        for col in ("sight_fwd_m", "sight_back_m"):
-            prof[col] = np.nan
-        out.keypoints = None
-        return
-    road = RoadProfile(stretches)
-    res = sight_both_ways(ch, road.z, rules, fine, curves=curves, grade=road.grade)
-    for name in ("fwd", "back"):
-        prof[f"sight_{name}_m"] = res[f"sight_{name}_m"]
-        prof[f"limit_{name}"] = LIMIT_NAMES[res[f"limit_{name}"]]
-        prof[f"curve_{name}"] = res[f"curve_{name}"]
-        prof[f"limit_at_{name}_m"] = res[f"limit_at_{name}_m"]
-    if cfg["sight.ground_diagnostic"]:
-        z = np.where(prof["ground_flag"].to_numpy() == "masked", np.nan, prof["ground_z_m"].to_numpy())
-        ground = sight_both_ways(ch, lambda x: np.interp(x, ch, z, left=np.nan, right=np.nan), rules, fine)
-        prof["ground_sight_fwd_m"] = ground["sight_fwd_m"]
-        prof["ground_sight_back_m"] = ground["sight_back_m"]
-    # key points: each curve from its PVC looking ahead and from its PVT looking back
-    rows = []
-    if len(curves):
-        for direction, col, sign in (("increasing", "pvc_m", 1), ("decreasing", "pvt_m", -1)):
-            eyes = curves[col].to_numpy(dtype=float)
-            r = sight_from(eyes, road.z, road.grade, rules, sign, fine)
-            no = attribute(eyes, r["limit_at_m"], r["limit"], curves, forward=sign > 0)
-            keep = no == curves["curve_no"].to_numpy()
-            rows.append(pd.DataFrame({
-                "road_id": out.road_id, "chainage_m": eyes[keep], "direction": direction,
-                "sight_m": r["sight_m"][keep], "limit_kind": LIMIT_NAMES[r["limit"][keep]],
-                "curve_no": no[keep], "grade": sign * road.grade(eyes[keep]),
-            }))
-        a, L = curves["a_pct"].to_numpy(float), curves["length_m"].to_numpy(float)
-        curves["sight_formula_m"] = np.where(
-            curves["kind"] == "crest",
-            crest_sight_formula(a, L, rules.eye_height_m, rules.object_height_m),
-            sag_sight_formula(a, L, rules.headlight_height_m, rules.beam_angle_deg))
-    out.keypoints = pd.concat(rows, ignore_index=True) if rows else None
-
-
-PREDICTED = "predicted (FHWA-RD-99-171)"
-
-
+# ------------------------------------------------------------------- speeds
 def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Speed each road is judged at (km/h), its basis, and a skip reason where there is none.
 
@@ -316,194 +86,6 @@ def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.nda
     return speed, basis, reason
 
 
-def road_plan(out: RoadOutcome, line, cfg: Config) -> None:
-    """Horizontal curves of the centreline, with the minimum-radius check (the plan stage)."""
-    from .plan import horizontal_curves
-
-    opts = {k: cfg[f"plan.{k}"] for k in ("smooth_m", "max_radius_m", "min_length_m", "min_deflection_deg")}
-    opts["step_m"] = min(cfg["profile.step_m"], 5.0)
-    hc = horizontal_curves(line, opts)
-    hc.insert(0, "road_id", out.road_id)
-    out.hcurves = hc
-
-
-def road_speeds(out: RoadOutcome, row: pd.Series, cfg: Config) -> None:
-    """Predicted operating speed at every station both ways, and the speed each station is
-    judged at (the road's speed, or the prediction where the road's basis is predicted)."""
-    from .speed import predict_v85
-
-    prof = out.profile
-    ch, g = prof["chainage_m"].to_numpy(), prof["grade_pct"].to_numpy()
-    vc = out.curves if out.curves is not None else pd.DataFrame()
-    desired = cfg["speed.desired_kmh"]
-    prof["v85_fwd_kmh"] = predict_v85(ch, g, vc, out.hcurves, desired, +1)
-    prof["v85_back_kmh"] = predict_v85(ch, g, vc, out.hcurves, desired, -1)
-    if row["speed_basis"] == PREDICTED:
-        prof["speed_fwd_kmh"] = prof["v85_fwd_kmh"]
-        prof["speed_back_kmh"] = prof["v85_back_kmh"]
-    else:
-        prof["speed_fwd_kmh"] = prof["speed_back_kmh"] = float(row["speed_kmh"])
-    kp = getattr(out, "keypoints", None)
-    if kp is not None and len(kp):
-        fwd = kp["direction"] == "increasing"
-        kp["speed_kmh"] = np.where(fwd, np.interp(kp["chainage_m"], ch, prof["speed_fwd_kmh"]),
-                                   np.interp(kp["chainage_m"], ch, prof["speed_back_kmh"]))
-
-
-def road_hazards(out: RoadOutcome, stretches: list, junctions: list, cset, cfg: Config) -> None:
-    """Hidden zone beyond every crest, both ways, at the required SSD for the speed judged at the
-    crest, and the hazards in it (horizontal curves beginning, junctions and accesses)."""
-    from .alignment import RoadProfile
-    from .hazards import hazards_in_zone, hidden_zone
-
-    rows = []
-    crests = out.curves[out.curves["kind"] == "crest"] if out.curves is not None and len(out.curves) else []
-    if len(crests) and stretches:
-        road = RoadProfile(stretches)
-        prof = out.profile
-        ch = prof["chainage_m"].to_numpy()
-        rules = cset.sight_rules()
-        for c in crests.itertuples():
-            i = int(np.clip(np.searchsorted(ch, c.pvi_m), 0, len(ch) - 1))
-            for direction, col in (("increasing", "speed_fwd_kmh"), ("decreasing", "speed_back_kmh")):
-                sign = 1 if direction == "increasing" else -1
-                v = float(prof[col].iloc[i])
-                ssd = float(cset.ssd_design(v / cset.speed_to_kmh)) * cset.length_to_m
-                zone = hidden_zone(road.z, c.pvi_m, c.pvt_m if sign > 0 else c.pvc_m, ssd, sign,
-                                   rules.eye_height_m, 0.0, cfg["sight.fine_step_m"], float(ch[-1]))
-                rows.append({"road_id": out.road_id, "curve_no": c.curve_no, "direction": direction}
-                            | hazards_in_zone(zone, sign, out.hcurves, junctions))
-    out.hazards = pd.DataFrame(rows, columns=HAZARD_COLUMNS)
-
-
-HAZARD_COLUMNS = ["road_id", "curve_no", "direction", "hidden_from_m", "hidden_to_m", "hidden_hazard",
-                  "hazard_chainage_m", "hazard_detail"]
-
-
-def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source, cset,
-                 junctions: list | None = None) -> RoadOutcome:
-    """Every per-road stage for one road, timed stage by stage."""
-    t0 = time.perf_counter()
-    if not isinstance(row["skip_reason"], str) and isinstance(row.get("speed_reason"), str):
-        return RoadOutcome(road_id=row["road_id"]).skip(row["speed_reason"])
-    out = road_profile(row, sampler, cfg, to_source)
-    t1 = time.perf_counter()
-    out.seconds["profile"] = t1 - t0
-    if out.status != "evaluated":
-        return out
-    stretches = road_alignment(out, cfg)
-    t2 = time.perf_counter()
-    out.seconds["alignment"] = t2 - t1
-    road_plan(out, row["geometry"], cfg)
-    t3 = time.perf_counter()
-    out.seconds["plan"] = t3 - t2
-    road_sight(out, stretches, cset.sight_rules(), cfg)
-    t4 = time.perf_counter()
-    out.seconds["sight"] = t4 - t3
-    road_speeds(out, row, cfg)
-    road_hazards(out, stretches, (junctions or []) + sampler.junction_points(row), cset, cfg)
-    out.seconds["speed and hazards"] = time.perf_counter() - t4
-    return out
-
-
-# ------------------------------------------------------------------ network run
-@dataclass
-class NetworkResult:
-    roads: Roads
-    outcomes: list[RoadOutcome]
-    timings: dict[str, float]
-    ground_info: dict
-    notes: list[str]
-    criteria: object = None
-    evaluation: object = None
-    step_m: float = 5.0
-
-    @property
-    def profiles(self) -> pd.DataFrame:
-        frames = [o.profile for o in self.outcomes if o.profile is not None]
-        if not frames:
-            return empty_profiles()
-        return pd.concat(frames, ignore_index=True)
-
-    @property
-    def curves(self) -> pd.DataFrame:
-        from .alignment import empty_curves
-
-        frames = [o.curves for o in self.outcomes if o.curves is not None and len(o.curves)]
-        if not frames:
-            empty = empty_curves()
-            empty.insert(0, "road_id", pd.Series(dtype=str))
-            empty["sight_formula_m"] = pd.Series(dtype=float)
-            return empty
-        return pd.concat(frames, ignore_index=True)
-
-    def _gather(self, attr: str, columns: list[str]) -> pd.DataFrame:
-        frames = [getattr(o, attr) for o in self.outcomes if getattr(o, attr, None) is not None]
-        frames = [f for f in frames if len(f)]
-        if not frames:
-            return pd.DataFrame({c: pd.Series(dtype=object) for c in columns})
-        return pd.concat(frames, ignore_index=True)
-
-    @property
-    def hcurves(self) -> pd.DataFrame:
-        from .plan import HCURVE_COLUMNS
-
-        return self._gather("hcurves", ["road_id"] + HCURVE_COLUMNS)
-
-    @property
-    def hazards(self) -> pd.DataFrame:
-        frame = self._gather("hazards", HAZARD_COLUMNS)
-        for c in ("hidden_from_m", "hidden_to_m", "hazard_chainage_m"):
-            frame[c] = frame[c].astype(float)
-        frame["curve_no"] = frame["curve_no"].astype("int64")
-        for c in ("road_id", "direction", "hidden_hazard", "hazard_detail"):
-            frame[c] = frame[c].astype(str)
-        return frame
-
-    @property
-    def keypoints(self) -> pd.DataFrame:
-        frames = [o.keypoints for o in self.outcomes if getattr(o, "keypoints", None) is not None]
-        if not frames:
-            return pd.DataFrame({"road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float),
-                                 "direction": pd.Series(dtype=str), "sight_m": pd.Series(dtype=float),
-                                 "limit_kind": pd.Series(dtype=str), "curve_no": pd.Series(dtype="int64"),
-                                 "grade": pd.Series(dtype=float), "speed_kmh": pd.Series(dtype=float)})
-        return pd.concat(frames, ignore_index=True)
-
-    def road_table(self) -> pd.DataFrame:
-        t = self.roads.table
-        status = {o.road_id: o for o in self.outcomes}
-        return pd.DataFrame({
-            "road_id": t["road_id"],
-            "name": t["name"],
-            "road_class": t["road_class"],
-            "aadt": t["aadt"],
-            "speed_kmh": t["speed_kmh"],
-            "speed_basis": t["speed_basis"],
-            "length_m": t["length_m"].round(2),
-            "status": [status[r].status for r in t["road_id"]],
-            "reason": [status[r].reason for r in t["road_id"]],
-        })
-
-    def data_notes(self) -> pd.DataFrame:
-        rows = [
-            {"road_id": o.road_id, "note": n[0], "from_m": n[1], "to_m": n[2], "detail": n[3]}
-            for o in self.outcomes for n in o.notes
-        ]
-        return pd.DataFrame(rows, columns=["road_id", "note", "from_m", "to_m", "detail"])
-
-
-def empty_profiles() -> pd.DataFrame:
-    return pd.DataFrame({
-        "road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float), "x": pd.Series(dtype=float),
-        "y": pd.Series(dtype=float), "ground_z_m": pd.Series(dtype=float), "ground_flag": pd.Series(dtype=str),
-        "fitted_z_m": pd.Series(dtype=float), "grade_pct": pd.Series(dtype=float),
-        "sight_fwd_m": pd.Series(dtype=float), "sight_back_m": pd.Series(dtype=float),
-        "limit_fwd": pd.Series(dtype=str), "limit_back": pd.Series(dtype=str),
-        "curve_fwd": pd.Series(dtype="int64"), "curve_back": pd.Series(dtype="int64"),
-        "speed_fwd_kmh": pd.Series(dtype=float), "speed_back_kmh": pd.Series(dtype=float),
-    })
-
 
 def network_junction_points(roads: Roads, cfg: Config) -> dict[str, list]:
     """Junctions where one road's end meets another road (per working CRS)."""
@@ -520,13 +102,240 @@ def network_junction_points(roads: Roads, cfg: Config) -> dict[str, list]:
     return out
 
 
+def chunk_rows(table: pd.DataFrame, chunk_km: float) -> list[np.ndarray]:
+    """Row positions of the roads in each chunk: consecutive roads, about ``chunk_km`` of road
+    a chunk (a road is never split)."""
+    length = np.nan_to_num(table["length_m"].to_numpy(dtype=float), nan=0.0)
+    chunks, cur, acc = [], [], 0.0
+    for i, L in enumerate(length):
+        cur.append(i)
+        acc += L
+        if acc >= chunk_km * 1000.0:
+            chunks.append(np.array(cur))
+            cur, acc = [], 0.0
+    if cur:
+        chunks.append(np.array(cur))
+    return chunks
+
+
+# ----------------------------------------------------------------- work folder
+TABLES = ("profiles", "curves", "keypoints", "hazards", "hcurves", "notes", "status")
+
+
+class WorkFolder:
+    """Where chunk results are kept, one folder per chunk, each completed by ``done.json``."""
+
+    def __init__(self, path: Path, key: str, resume: bool):
+        self.path = Path(path)
+        key_file = self.path / "key.json"
+        if self.path.exists():
+            same = key_file.is_file() and json.loads(key_file.read_text()).get("key") == key
+            if not (resume and same):
+                shutil.rmtree(self.path)
+        self.path.mkdir(parents=True, exist_ok=True)
+        key_file.write_text(json.dumps({"key": key}))
+
+    def chunk(self, k: int) -> Path:
+        return self.path / f"chunk_{k:05d}"
+
+    def done(self, k: int) -> bool:
+        return (self.chunk(k) / "done.json").is_file()
+
+    def write(self, k: int, result: dict) -> None:
+        """Write one chunk's tables; the folder is renamed into place only once complete."""
+        final = self.chunk(k)
+        tmp = self.path / f".tmp_{k:05d}_{os.getpid()}"
+        if tmp.exists():
+            shutil.rmtree(tmp)
+        tmp.mkdir()
+        for name in TABLES:
+            frame = _typed(name, result[name])
+            frame.to_parquet(tmp / f"{name}.parquet", index=False)
+        meta = {key: result[key] for key in ("seconds", "points_used", "points_dropped", "sampler_notes")}
+        (tmp / "done.json").write_text(json.dumps(meta))
+        if final.exists():
+            shutil.rmtree(final)
+        tmp.rename(final)
+
+    def meta(self, k: int) -> dict:
+        return json.loads((self.chunk(k) / "done.json").read_text())
+
+    def glob(self, name: str) -> str:
+        return str(self.path / "chunk_*" / f"{name}.parquet")
+
+
+def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
+    """A chunk table with a fixed schema even when empty (so every chunk file reads alike)."""
+    if frame is not None and len(frame):
+        return frame
+    from .alignment import empty_curves
+
+    if name == "profiles":
+        return empty_profiles()
+    if name == "curves":
+        e = empty_curves()
+        e.insert(0, "road_id", pd.Series(dtype=str))
+        e["sight_formula_m"] = pd.Series(dtype=float)
+        return e
+    if name == "keypoints":
+        return pd.DataFrame({"road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float),
+                             "direction": pd.Series(dtype=str), "sight_m": pd.Series(dtype=float),
+                             "limit_kind": pd.Series(dtype=str), "curve_no": pd.Series(dtype="int64"),
+                             "grade": pd.Series(dtype=float), "speed_kmh": pd.Series(dtype=float)})
+    if name == "hazards":
+        return pd.DataFrame({c: pd.Series(dtype="int64" if c == "curve_no" else
+                                          (float if c.endswith("_m") else str)) for c in HAZARD_COLUMNS})
+    if name == "hcurves":
+        from .plan import HCURVE_COLUMNS
+
+        cols = ["road_id"] + HCURVE_COLUMNS + ["speed_kmh", "r_min_m", "below_min_radius", "ssd_required_m",
+                                               "hso_m", "hso_valid", "v85_kmh"]
+        kinds = {"road_id": str, "direction": str, "hcurve_no": "int64", "below_min_radius": bool,
+                 "hso_valid": bool}
+        return pd.DataFrame({c: pd.Series(dtype=kinds.get(c, float)) for c in cols})
+    if name == "notes":
+        return pd.DataFrame({"road_id": pd.Series(dtype=str), "note": pd.Series(dtype=str),
+                             "from_m": pd.Series(dtype=float), "to_m": pd.Series(dtype=float),
+                             "detail": pd.Series(dtype=str)})
+    if name == "status":
+        return pd.DataFrame({"road_id": pd.Series(dtype=str), "status": pd.Series(dtype=str),
+                             "reason": pd.Series(dtype=str)})
+    raise KeyError(name)
+
+
+def empty_profiles() -> pd.DataFrame:
+    return pd.DataFrame({
+        "road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float), "x": pd.Series(dtype=float),
+        "y": pd.Series(dtype=float), "ground_z_m": pd.Series(dtype=float), "ground_flag": pd.Series(dtype=str),
+        "fitted_z_m": pd.Series(dtype=float), "grade_pct": pd.Series(dtype=float),
+        "sight_fwd_m": pd.Series(dtype=float), "sight_back_m": pd.Series(dtype=float),
+        "limit_fwd": pd.Series(dtype=str), "limit_back": pd.Series(dtype=str),
+        "curve_fwd": pd.Series(dtype="int64"), "curve_back": pd.Series(dtype="int64"),
+        "speed_fwd_kmh": pd.Series(dtype=float), "speed_back_kmh": pd.Series(dtype=float),
+    })
+
+
+def _run_chunk_to_folder(job: Job, rows: pd.DataFrame, net_junctions: dict, folder: str, k: int) -> dict:
+    """Worker side of the local engine: run a chunk and write it (the worker shares the disk)."""
+    result = process_chunk(job, rows, net_junctions)
+    wf = WorkFolder.__new__(WorkFolder)
+    wf.path = Path(folder)
+    wf.write(k, result)
+    return {"k": k, "n": len(rows)}
+
+
+# ------------------------------------------------------------------ the result
+@dataclass
+class NetworkResult:
+    """A finished network run: the roads, where the chunk results are, and the verdicts."""
+
+    roads: Roads
+    work: WorkFolder
+    timings: dict[str, float]
+    ground_info: dict
+    notes: list[str]
+    criteria: object = None
+    evaluation: object = None
+    step_m: float = 5.0
+    chunks: dict = field(default_factory=dict)
+
+    def _read(self, name: str, where: str = "", order: str = "") -> pd.DataFrame:
+        sql = f"SELECT * FROM read_parquet('{self.work.glob(name)}', union_by_name = true) {where} {order}"
+        with duckdb.connect() as con:
+            frame = con.sql(sql).df()
+        return frame if len(frame) else _typed(name, None)
+
+    def _order(self, frame: pd.DataFrame, by: list[str]) -> pd.DataFrame:
+        pos = {r: i for i, r in enumerate(self.roads.table["road_id"])}
+        frame = frame.assign(_o=frame["road_id"].map(pos)).sort_values(["_o"] + by, kind="stable")
+        return frame.drop(columns="_o").reset_index(drop=True)
+
+    @property
+    def profiles(self) -> pd.DataFrame:
+        """Every station of every road (read in full: for small networks and tests)."""
+        return self._order(self._read("profiles"), ["chainage_m"])
+
+    def road_profile(self, road_id: str) -> pd.DataFrame:
+        return self.road_profiles([road_id]).get(road_id, _typed("profiles", None))
+
+    def road_profiles(self, road_ids) -> dict[str, pd.DataFrame]:
+        """The stations of several roads, read in one pass over the chunk files."""
+        ids = sorted({str(r) for r in road_ids})
+        if not ids:
+            return {}
+        with duckdb.connect() as con:
+            con.register("wanted", pd.DataFrame({"road_id": ids}))
+            frame = con.sql(f"SELECT p.* FROM read_parquet('{self.work.glob('profiles')}', union_by_name = true) p "
+                            f"JOIN wanted USING (road_id) ORDER BY road_id, chainage_m").df()
+        return {rid: g.reset_index(drop=True) for rid, g in frame.groupby("road_id", sort=False)}
+
+    @property
+    def curves(self) -> pd.DataFrame:
+        return self._order(self._read("curves"), ["curve_no"])
+
+    @property
+    def hcurves(self) -> pd.DataFrame:
+        return self._order(self._read("hcurves"), ["hcurve_no"])
+
+    @property
+    def hazards(self) -> pd.DataFrame:
+        return self._read("hazards")
+
+    @property
+    def keypoints(self) -> pd.DataFrame:
+        return self._read("keypoints")
+
+    def status(self) -> pd.DataFrame:
+        return self._read("status")
+
+    def road_table(self) -> pd.DataFrame:
+        t = self.roads.table
+        st = self.status().set_index("road_id")
+        return pd.DataFrame({
+            "road_id": t["road_id"],
+            "name": t["name"],
+            "road_class": t["road_class"],
+            "aadt": t["aadt"],
+            "speed_kmh": t["speed_kmh"],
+            "speed_basis": t["speed_basis"],
+            "length_m": t["length_m"].round(2),
+            "status": st["status"].reindex(t["road_id"]).to_numpy(),
+            "reason": st["reason"].reindex(t["road_id"]).to_numpy(),
+        })
+
+    def data_notes(self) -> pd.DataFrame:
+        return self._order(self._read("notes"), [])
+
+
+# ------------------------------------------------------------------- the run
+def _run_key(roads_path, ground_path, cfg: Config) -> str:
+    """What the results of a run depend on: inputs, settings and the version."""
+    h = hashlib.sha256()
+    for p in (roads_path, ground_path, cfg["structures.file"], cfg["junctions.file"], *cfg["criteria.files"]):
+        h.update((file_sha256(p) if p else "-").encode())
+    settings = {s: v for s, v in cfg.as_dict().items() if s != "run"}
+    h.update(json.dumps(settings, sort_keys=True, default=str).encode())
+    h.update(__version__.encode())
+    return h.hexdigest()
+
+
+def _workers(cfg: Config) -> int:
+    n = cfg["run.workers"]
+    return n if n > 0 else (os.cpu_count() or 1)
+
+
 def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
-                progress: Progress | None = None) -> NetworkResult:
-    """Ingest, the per-road stages and the evaluation, for a whole network. Known structures
-    come from ``structures.file`` in the config (or ``--structures``)."""
+                progress: Progress | None = None, work_dir: str | Path | None = None,
+                resume: bool = False, pool=None) -> NetworkResult:
+    """Ingest, the per-road stages in chunks, and the evaluation, for a whole network. Known
+    structures come from ``structures.file`` and junctions from ``junctions.file``.
+
+    ``work_dir`` holds the chunk results (a temporary folder, removed with the result, when
+    not given); with ``resume`` the chunks already finished there for the same inputs and
+    settings are reused."""
     from .criteria import get_set
-    from .ingest import read_features
     from .evaluate import evaluate
+    from .ingest import read_features
 
     progress = progress or Progress()
     timings: dict[str, float] = {}
@@ -542,73 +351,192 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
         tick()
     table = roads.table
     table["speed_kmh"], table["speed_basis"], table["speed_reason"] = resolve_speeds(table, cfg)
+    net_junctions = network_junction_points(roads, cfg)
     timings["ingest"] = time.perf_counter() - t0
 
-    sampler = GroundSampler(ground, roads, cfg, structures, junction_layer)
-    net_junctions = network_junction_points(roads, cfg)
-    back = {key: (None if crs is roads.source_crs else transformer(crs, roads.source_crs))
-            for key, crs in roads.work_crs.items()}
-    outcomes: list[RoadOutcome] = []
+    owner = None
+    if work_dir is None:
+        owner = tempfile.mkdtemp(prefix="sightaudit-work-")
+        work_dir = Path(owner) / "work"
+    work = WorkFolder(Path(work_dir), _run_key(roads_path, ground_path, cfg), resume)
+    job = Job(cfg=cfg, cset=cset, work_crs=roads.work_crs, source_crs=roads.source_crs, ground=ground,
+              structures=structures, junctions=junction_layer)
+    chunks = chunk_rows(table, cfg["run.chunk_km"])
+    todo = [k for k in range(len(chunks)) if not work.done(k)]
+    t0 = time.perf_counter()
     with progress.stage("profiles, curves, sight", total=len(table)) as tick:
-        for _, row in table.iterrows():
-            outcomes.append(process_road(row, sampler, cfg, back.get(row["work_key"]), cset,
-                                         net_junctions.get(row["road_id"], [])))
-            tick()
-    for o in outcomes:
-        for stage, secs in o.seconds.items():
-            timings[stage] = timings.get(stage, 0.0) + secs
+        for k in set(range(len(chunks))) - set(todo):
+            tick(len(chunks[k]))
+        _run_chunks(job, table, chunks, todo, net_junctions, work, cfg, tick, pool)
+    wall = time.perf_counter() - t0
 
+    # what the chunks report
+    points_used = points_dropped = 0
+    sampler_notes: list[str] = []
+    for k in range(len(chunks)):
+        meta = work.meta(k)
+        for stage, secs in meta["seconds"].items():
+            timings[stage] = timings.get(stage, 0.0) + secs
+        points_used += meta["points_used"]
+        points_dropped += meta["points_dropped"]
+        sampler_notes += [n for n in meta["sampler_notes"] if n not in sampler_notes]
+    timings["per-road stages, wall clock"] = wall
     ground_info = ground.describe() | {"path": str(ground.path)}
     if isinstance(ground, PointGround):
-        ground_info["points_used"] = sampler.points_used
-        ground_info["points_dropped_offset"] = sampler.points_dropped
-        unknown = sorted(set(ground.by_road) - set(table["road_id"]))
+        ground_info["points_used"] = points_used
+        ground_info["points_dropped_offset"] = points_dropped
+        unknown = sorted(set(ground.groups) - set(table["source_id"]))
         if unknown:
             ground_info["points_for_unknown_roads"] = len(unknown)
             roads.notes.append(f"ground points for {len(unknown)} road id(s) not in the roads file ignored "
                                f"(e.g. {unknown[0]!r})")
-    result = NetworkResult(roads=roads, outcomes=outcomes, timings=timings, ground_info=ground_info,
-                           notes=roads.notes + sampler.notes, criteria=cset, step_m=cfg["profile.step_m"])
+    result = NetworkResult(roads=roads, work=work, timings=timings, ground_info=ground_info,
+                           notes=roads.notes + sampler_notes, criteria=cset, step_m=cfg["profile.step_m"],
+                           chunks={"total": len(chunks), "computed": len(todo), "reused": len(chunks) - len(todo),
+                                   "workers": _workers(cfg), "engine": cfg["run.engine"]})
+    if owner is not None:
+        weakref.finalize(result, shutil.rmtree, owner, True)
     t0 = time.perf_counter()
     with progress.stage("judging curves (DuckDB)") as tick:
-        prof = result.profiles
-        cols = ["road_id", "chainage_m", "grade_pct", "sight_fwd_m", "sight_back_m", "limit_fwd", "limit_back",
-                "curve_fwd", "curve_back", "speed_fwd_kmh", "speed_back_kmh"]
-        for c in cols:
-            if c not in prof:
-                prof[c] = empty_profiles()[c]
-        result.evaluation = evaluate(result.road_table(), prof[cols], result.curves, result.keypoints,
-                                     result.hazards, cset, cfg)
+        result.evaluation = evaluate(result.road_table(), work.glob("profiles"), result.curves,
+                                     work.glob("keypoints"), result.hazards, cset, cfg)
         tick()
     timings["evaluate"] = time.perf_counter() - t0
     return result
 
 
+BLAS_THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@contextlib.contextmanager
+def worker_pool(cfg: Config):
+    """A pool of worker processes for the run (``None`` with one worker or another engine).
+
+    Workers are started with 'spawn' (clean processes, no inherited threads or open files)
+    and one BLAS thread each: the workers already fill the cores, and the matrices are small.
+    The environment is set for the pool's whole life because it starts processes lazily."""
+    workers = _workers(cfg)
+    if cfg["run.engine"] != "local" or workers <= 1:
+        yield None
+        return
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    saved = {k: os.environ.get(k) for k in BLAS_THREAD_VARS + ("MPLBACKEND",)}
+    os.environ.update({k: "1" for k in BLAS_THREAD_VARS} | {"MPLBACKEND": "Agg"})
+    try:
+        with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn")) as pool:
+            yield pool
+    finally:
+        for k, v in saved.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
+
+
+def _run_chunks(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], net_junctions: dict,
+                work: WorkFolder, cfg: Config, tick, pool=None) -> None:
+    """Run the unfinished chunks with the configured engine (in ``pool`` when given)."""
+    if not todo:
+        return
+
+    def rows_of(k):
+        rows = table.iloc[chunks[k]]
+        return rows, {r: net_junctions[r] for r in rows["road_id"] if r in net_junctions}
+
+    if cfg["run.engine"] == "dask":
+        _run_dask(job, todo, rows_of, work, cfg, tick)
+        return
+    if pool is None and len(todo) > 1:
+        with worker_pool(cfg) as own:
+            if own is not None:
+                _submit_all(own, job, todo, rows_of, work, tick)
+                return
+    if pool is None or len(todo) <= 1:
+        for k in todo:
+            rows, nj = rows_of(k)
+            work.write(k, process_chunk(job, rows, nj))
+            tick(len(rows))
+        return
+    _submit_all(pool, job, todo, rows_of, work, tick)
+
+
+def _submit_all(pool, job: Job, todo: list[int], rows_of, work: WorkFolder, tick) -> None:
+    """Hand each chunk (with only its own ground points) to the pool; tick as they finish."""
+    from concurrent.futures import as_completed
+
+    futures = {}
+    for k in todo:
+        rows, nj = rows_of(k)
+        futures[pool.submit(_run_chunk_to_folder, _job_for(job, rows), rows, nj, str(work.path), k)] = len(rows)
+    for f in as_completed(futures):
+        f.result()
+        tick(futures[f])
+
+
+def _job_for(job: Job, rows: pd.DataFrame) -> Job:
+    """The job to send with a chunk: ground points cut down to the chunk's roads."""
+    if not isinstance(job.ground, PointGround):
+        return job
+    return Job(**{**job.__dict__, "ground": job.ground.subset(rows["source_id"])})
+
+
+def _run_dask(job: Job, todo: list[int], rows_of, work: WorkFolder, cfg: Config, tick) -> None:
+    """The chunks on a Dask cluster (``run.scheduler`` is its address): the workers compute and
+    return each chunk's tables, which are written here, so no shared disk is needed (but the
+    DEM, when one is used, must be readable at the same path on every worker)."""
+    from .errors import InputError
+
+    try:
+        from dask.distributed import Client, as_completed
+    except ImportError:
+        raise InputError("the dask engine needs dask.distributed: pip install 'sightaudit[cluster]'") from None
+    if not cfg["run.scheduler"]:
+        raise InputError("the dask engine needs the scheduler's address: --scheduler tcp://HOST:8786")
+    with Client(cfg["run.scheduler"]) as client:
+        futures = {}
+        for k in todo:
+            rows, nj = rows_of(k)
+            fut = client.submit(process_chunk, _job_for(job, rows), rows, nj, pure=False)
+            futures[fut] = (k, len(rows))
+        for fut in as_completed(list(futures)):
+            k, n = futures[fut]
+            work.write(k, fut.result())
+            tick(n)
+
+
 def accounting(result: NetworkResult) -> dict:
     """Counts of roads in, evaluated and skipped (with reasons); checks they add up."""
     n_in = len(result.roads.table)
-    evaluated = [o for o in result.outcomes if o.status == "evaluated"]
-    skipped = [o for o in result.outcomes if o.status == "skipped"]
-    if n_in != len(evaluated) + len(skipped) or len(result.outcomes) != n_in:
+    st = result.status()
+    evaluated = st[st["status"] == "evaluated"]
+    skipped = st[st["status"] == "skipped"]
+    if n_in != len(evaluated) + len(skipped) or len(st) != n_in or set(st["road_id"]) != set(result.roads.table["road_id"]):
         raise RuntimeError(f"road accounting broken: {n_in} in, {len(evaluated)} evaluated, {len(skipped)} skipped")
+    order = {r: i for i, r in enumerate(result.roads.table["road_id"])}
+    skipped = skipped.assign(_o=skipped["road_id"].map(order)).sort_values("_o")
     by_reason: dict[str, int] = {}
-    for o in skipped:
-        by_reason[o.reason] = by_reason.get(o.reason, 0) + 1
+    for reason in skipped["reason"]:
+        by_reason[reason] = by_reason.get(reason, 0) + 1
     return {
         "in": n_in,
-        "evaluated": len(evaluated),
-        "skipped": len(skipped),
+        "evaluated": int(len(evaluated)),
+        "skipped": int(len(skipped)),
         "skipped_by_reason": by_reason,
-        "skipped_roads": [{"road_id": o.road_id, "reason": o.reason} for o in skipped],
+        "skipped_roads": [{"road_id": r, "reason": w} for r, w in zip(skipped["road_id"], skipped["reason"])],
     }
 
 
 def network_summary(result: NetworkResult) -> pd.DataFrame:
     """Roads and km in and evaluated, and ground coverage, by road class (``sql/network_summary.sql``)."""
-    from .sqlrun import run_sql
+    from .sqlrun import sql_text
 
-    prof = result.profiles[["road_id", "chainage_m", "ground_flag"]]
-    return run_sql("network_summary", {"roads": result.road_table(), "stations": prof})
+    with duckdb.connect() as con:
+        con.register("roads", result.road_table())
+        con.sql(f"CREATE VIEW stations AS SELECT road_id, chainage_m, ground_flag "
+                f"FROM read_parquet('{result.work.glob('profiles')}', union_by_name = true)")
+        return con.sql(sql_text("network_summary")).df()
 
 
 def _units_info(cfg: Config) -> dict:
@@ -620,19 +548,22 @@ def _units_info(cfg: Config) -> dict:
 
 
 def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_dir: str | Path,
-              progress: Progress | None = None, command: list[str] | None = None) -> dict:
+              progress: Progress | None = None, command: list[str] | None = None, resume: bool = False) -> dict:
     """The whole audit: read, compute, write every output into ``out_dir``.
 
     Outputs are written to a temporary folder beside ``out_dir`` and moved into
-    place only when complete. Returns the run summary (also in ``run.json``).
+    place only when complete. Chunk results are kept in a work folder beside it
+    (``.NAME.work``) until then, so that ``resume`` can reuse them after an
+    interruption. Returns the run summary (also in ``run.json``).
     """
     from .export import staging_folder, write_outputs
 
     progress = progress or Progress()
     started = datetime.now(timezone.utc)
     out_dir = Path(out_dir)
-    with staging_folder(out_dir) as tmp:
-        result = run_network(roads_path, ground_path, cfg, progress)
+    work_dir = out_dir.resolve().parent / f".{out_dir.resolve().name}.work"
+    with staging_folder(out_dir) as tmp, worker_pool(cfg) as pool:
+        result = run_network(roads_path, ground_path, cfg, progress, work_dir=work_dir, resume=resume, pool=pool)
         t0 = time.perf_counter()
         summary = {
             "tool": "sightaudit",
@@ -655,14 +586,18 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
             "audit_summary": result.evaluation.summary.to_dict(orient="records"),
             "notes": result.notes,
             "stage_seconds": result.timings,
+            "chunks": result.chunks,
             "caution": CAUTION,
         }
         with progress.stage("writing outputs"):
-            write_outputs(tmp, result, summary, cfg)
+            write_outputs(tmp, result, summary, cfg, pool)
         result.timings["export"] = time.perf_counter() - t0
-        summary["finished_utc"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+        finished = datetime.now(timezone.utc)
+        summary["finished_utc"] = finished.isoformat(timespec="seconds")
+        summary["total_seconds"] = round((finished - started).total_seconds(), 2)
         from .export import write_run_json
 
         write_run_json(tmp / "run.json", summary)
+    shutil.rmtree(work_dir, ignore_errors=True)
     return summary
 

@@ -14,7 +14,8 @@ from .config import Config
 
 def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25.0) -> dict:
     """What a run would find in the inputs. File-level faults raise ``InputError`` as in a run."""
-    from .batch import GroundSampler, resolve_speeds
+    from .batch import resolve_speeds
+    from .roadwork import GroundSampler
     from .ingest import DemGround, open_ground, read_roads
     from .profile import station_chainages
 
@@ -34,7 +35,7 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
     problems += roads.notes
 
     # ground coverage: stations every sample_step_m on every usable road
-    sampler = GroundSampler(ground, roads, cfg)
+    sampler = GroundSampler(ground, roads.work_crs, cfg)
     covered = total = 0.0
     no_ground = []
     sub = cfg.copy_with({"profile.step_m": sample_step_m})

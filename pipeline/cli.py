@@ -34,6 +34,9 @@ RUN_FLAGS = [
     ("--junctions", "junctions.file", str, "PATH", "junctions and accesses to look for beyond crests (points)"),
     ("--speed-source", "speed.source", str, "SOURCE", "attribute (speed column) or predicted (FHWA-RD-99-171)"),
     ("--units", "output.units", str, "SYSTEM", "metric (m, km/h) or us (ft, mph): speeds read, results written"),
+    ("--workers", "run.workers", int, "N", "processes for the per-road stages [every core]"),
+    ("--engine", "run.engine", str, "ENGINE", "local, or dask to run on a Dask cluster (--scheduler)"),
+    ("--scheduler", "run.scheduler", str, "ADDRESS", "Dask scheduler address, e.g. tcp://10.0.0.5:8786"),
 ]
 
 
@@ -60,6 +63,8 @@ def _parser() -> argparse.ArgumentParser:
         run.add_argument(flag, dest=key, type=typ, default=None, metavar=metavar, help=text)
     run.add_argument("--profiles-pdf", dest="output.profiles_pdf", action="store_const", const=True, default=None,
                      help="also write profiles.pdf: one long profile per road, for the field team")
+    run.add_argument("--resume", action="store_true",
+                     help="after an interrupted run: redo only the chunks of roads not finished")
     common(run)
 
     val = sub.add_parser("validate", help="check the inputs without running the audit",
@@ -68,7 +73,7 @@ def _parser() -> argparse.ArgumentParser:
     val.add_argument("--roads", required=True, metavar="PATH", help="road centrelines")
     val.add_argument("--ground", required=True, metavar="PATH", help="DEM GeoTIFF or ground points")
     val.add_argument("--config", metavar="FILE.toml", help="settings file")
-    for flag, key, typ, metavar, text in RUN_FLAGS[:7] + RUN_FLAGS[-1:]:
+    for flag, key, typ, metavar, text in RUN_FLAGS[:7] + [f for f in RUN_FLAGS if f[0] == "--units"]:
         val.add_argument(flag, dest=key, type=typ, default=None, metavar=metavar, help=text)
 
     init = sub.add_parser("init", help="write an example settings file, every setting explained",
@@ -169,7 +174,7 @@ def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
         ("Deficient stretches", f"{int(net.get('deficient_stretches') or 0)}: severe {dist(net.get('deficient_km_severe'))}, "
                                 f"moderate {dist(net.get('deficient_km_moderate'))}, minor {dist(net.get('deficient_km_minor'))}"),
         ("Hiding a hazard", f"{summary.get('hazard_stretches', 0)} stretch(es)"),
-        ("Time", f"{sum(summary['stage_seconds'].values()):.1f} s"),
+        ("Time", f"{summary.get('total_seconds', 0):.1f} s"),
         ("Output folder", str(out.resolve())),
     ]
     for reason, n in r["skipped_by_reason"].items():
@@ -197,7 +202,8 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
 
     cfg = load_config(config, overrides)
     out = Path(args.out)
-    summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:])
+    summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:],
+                        resume=getattr(args, "resume", False))
     _print_summary(summary, out, args.quiet)
     return 0
 

@@ -65,6 +65,12 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "default_length_m": (30.0, "length masked around a structure given as a point (m)"),
         "max_offset_m": (25.0, "a structure further than this from a road's centreline is not on that road (m)"),
     },
+    "run": {
+        "workers": (0, "processes for the per-road stages; 0 = every core, 1 = none (all in this process)"),
+        "chunk_km": (200.0, "road length handed to a worker at a time; memory grows with it, not the network (km)"),
+        "engine": ("local", "'local' (this machine) or 'dask' (a Dask cluster, see run.scheduler)"),
+        "scheduler": ("", "address of the Dask scheduler for the dask engine, e.g. 'tcp://10.0.0.5:8786'"),
+    },
     "output": {
         "units": ("metric", "'metric' (m, km/h) or 'us' (ft, mph): speeds are read and every result written in these "
                             "units; 'us' also judges with aashto-2018-us unless criteria.set says otherwise"),
@@ -101,8 +107,9 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "snap_m": (5.0, "how close a road's end must come to another road to make a junction (m)"),
     },
     "sight": {
-        "fine_step_m": (1.0, "spacing of the road samples a sight line is checked against (m)"),
-        "ground_diagnostic": (True, "also measure sight distance on the raw ground profile (diagnostic columns)"),
+        "fine_step_m": (2.0, "spacing of the road samples a sight line is checked against (m)"),
+        "ground_diagnostic": (True, "also measure the line of sight on the raw ground profile, at the station "
+                                    "step (diagnostic columns)"),
     },
     "inventory": {
         "severity_bands_kmh": ([10.0, 20.0], "speed gaps (km/h) separating minor, moderate and severe deficiencies"),
@@ -177,6 +184,12 @@ def _check_value(key: str, value: Any, source: str) -> None:
             bad("must be a list of file paths")
     elif key in ("profile.step_m", "sight.fine_step_m", "ground.max_offset_m", "profile.max_gap_m",
                  "inventory.aadt_ref", "speed.desired_kmh", "plan.smooth_m", "plan.max_radius_m") and not value > 0:
+        bad("must be positive")
+    elif key == "run.engine" and value not in ("local", "dask"):
+        bad("must be 'local' or 'dask'")
+    elif key == "run.workers" and value < 0:
+        bad("must be 0 (every core) or more")
+    elif key == "run.chunk_km" and not value > 0:
         bad("must be positive")
     elif key == "output.units" and value not in ("metric", "us"):
         bad("must be 'metric' or 'us'")

@@ -41,10 +41,11 @@ def params_table(cfg: Config) -> pd.DataFrame:
     }])
 
 
-def evaluate(roads: pd.DataFrame, profiles: pd.DataFrame, curves: pd.DataFrame, keypoints: pd.DataFrame,
-             hazards: pd.DataFrame, cset: CriteriaSet, cfg: Config) -> Evaluation:
-    """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the
-    columns each table needs)."""
+def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, hazards: pd.DataFrame,
+             cset: CriteriaSet, cfg: Config) -> Evaluation:
+    """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the columns
+    each table needs). ``profiles`` and ``keypoints`` may be DataFrames or Parquet file patterns,
+    which DuckDB reads as it goes without loading them whole."""
     set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
     con = duckdb.connect()
     try:
@@ -52,7 +53,10 @@ def evaluate(roads: pd.DataFrame, profiles: pd.DataFrame, curves: pd.DataFrame, 
                   "hazards": hazards, "cset": set_row,
                   "cspeeds": cset.table, "params": params_table(cfg)}
         for name, frame in tables.items():
-            con.register(name, frame)
+            if isinstance(frame, str):
+                con.sql(f"CREATE VIEW {name} AS SELECT * FROM read_parquet('{frame}', union_by_name = true)")
+            else:
+                con.register(name, frame)
         for name in ("criteria_macros", "evaluate", "inventory"):
             con.sql(sql_text(name))
         curve_eval = con.sql("SELECT * FROM curve_eval ORDER BY road_id, curve_no").df()

@@ -65,8 +65,29 @@ def write_run_json(path: Path, summary: dict) -> None:
     path.write_text(json.dumps(summary, indent=2, default=_json_default) + "\n", encoding="utf-8")
 
 
-def write_profiles(path: Path, profiles: pd.DataFrame) -> None:
-    profiles.to_parquet(path, index=False)
+def write_profiles_from_work(path: Path, result, units) -> None:
+    """profiles.parquet straight from the chunk files (DuckDB streams them; the network's
+    stations are never all in memory), in road order then chainage, in the run's units."""
+    import duckdb
+
+    glob = result.work.glob("profiles")
+    with duckdb.connect() as con:
+        cols = [r[0] for r in con.sql(f"DESCRIBE SELECT * FROM read_parquet('{glob}', union_by_name = true)")
+                .fetchall()]
+        exprs = []
+        for c in cols:
+            new = units.column(c)
+            if units.us and c.endswith("_m"):
+                exprs.append(f'"{c}" / {units.m_per_length!r} AS "{new}"')
+            elif units.us and c.endswith("_kmh"):
+                exprs.append(f'"{c}" / {units.kmh_per_speed!r} AS "{new}"')
+            else:
+                exprs.append(f'"{c}"')
+        con.register("road_order", pd.DataFrame({"road_id": result.roads.table["road_id"],
+                                                 "_order": np.arange(len(result.roads.table))}))
+        con.sql(f"COPY (SELECT {', '.join(exprs)} FROM read_parquet('{glob}', union_by_name = true) p "
+                f"JOIN road_order USING (road_id) ORDER BY _order, chainage_m) "
+                f"TO '{path}' (FORMAT parquet)")
 
 
 CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
@@ -252,8 +273,7 @@ def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[t
             width = max([len(str(col))] + [len(str(_cell(v))) for v in values.head(200)]) + 2
             sh.set_column(j, j, min(max(width, 8), 60))
         for i, rec in enumerate(frame.itertuples(index=False), start=1):
-            for j, v in enumerate(rec):
-                sh.write(i, j, _cell(v))
+            sh.write_row(i, 0, [_cell(v) for v in rec])
         sh.freeze_panes(1, 0)
         sh.autofilter(0, 0, max(len(frame), 1), max(len(frame.columns) - 1, 0))
 
@@ -278,16 +298,6 @@ def _cell(v):
     return v if isinstance(v, (int, float, str)) else str(v)
 
 
-def _substring(line, start: float, end: float):
-    import shapely.ops
-
-    start, end = max(0.0, start), min(float(line.length), end)
-    seg = shapely.ops.substring(line, start, end)
-    if seg.geom_type != "LineString":  # a point where start == end: a short line around it
-        seg = shapely.ops.substring(line, max(0.0, start - 0.5), min(float(line.length), end + 0.5))
-    return seg
-
-
 def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame,
                hcurves: pd.DataFrame, units=None) -> None:
     """Layers ``roads``, ``curves`` (PVC-PVT lines), ``deficiencies`` (the deficient
@@ -295,6 +305,8 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     stations) and ``horizontal_curves``, all in the roads' CRS."""
     import geopandas as gpd
     import shapely
+
+    from .profile import Polyline
 
     roads = result.roads
     t = roads.table.set_index("road_id", drop=False)
@@ -306,24 +318,26 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
         .to_file(path, layer="roads", driver="GPKG", engine="pyogrio")
 
     back = {k: roads.to_source(k) if roads.work_crs[k] is not crs else None for k in roads.work_crs}
+    polylines: dict[str, Polyline] = {}
 
-    def cut(road_id, a, b):
-        line = t.at[road_id, "geometry"]
-        seg = _substring(line, a, b)
-        tr = back[t.at[road_id, "work_key"]]
-        if tr is not None:
-            seg = shapely.transform(seg, lambda xy: np.column_stack(tr.transform(xy[:, 0], xy[:, 1])))
-        return seg
+    def cut(frame: pd.DataFrame, a_col: str, b_col: str, pad: float):
+        """Pieces of the working-CRS centrelines by chainage, back in the roads' CRS."""
+        out = []
+        for rid, a, b in zip(frame["road_id"], frame[a_col], frame[b_col]):
+            if rid not in polylines:
+                polylines[rid] = Polyline(t.at[rid, "geometry"])
+            xy = polylines[rid].cut(a - pad, b + pad)
+            tr = back[t.at[rid, "work_key"]]
+            if tr is not None:
+                xy = np.column_stack(tr.transform(xy[:, 0], xy[:, 1]))
+            out.append(shapely.linestrings(xy))
+        return out
 
-    cg = [cut(r.road_id, r.pvc_m, r.pvt_m) for r in curves.itertuples()]
-    gpd.GeoDataFrame(conv(curves), geometry=cg, crs=crs).to_file(path, layer="curves", driver="GPKG",
-                                                                 engine="pyogrio")
-    dg = [cut(r.road_id, r.from_m - step / 2, r.to_m + step / 2) for r in deficiencies.itertuples()]
-    gpd.GeoDataFrame(conv(deficiencies), geometry=dg, crs=crs).to_file(path, layer="deficiencies", driver="GPKG",
-                                                                      engine="pyogrio")
-    hg = [cut(r.road_id, r.start_m, r.end_m) for r in hcurves.itertuples()]
-    gpd.GeoDataFrame(conv(hcurves), geometry=hg, crs=crs).to_file(path, layer="horizontal_curves", driver="GPKG",
-                                                                 engine="pyogrio")
+    for layer, frame, geom in (("curves", curves, cut(curves, "pvc_m", "pvt_m", 0.0)),
+                               ("deficiencies", deficiencies, cut(deficiencies, "from_m", "to_m", step / 2)),
+                               ("horizontal_curves", hcurves, cut(hcurves, "start_m", "end_m", 0.0))):
+        gpd.GeoDataFrame(conv(frame), geometry=geom, crs=crs).to_file(path, layer=layer, driver="GPKG",
+                                                                    engine="pyogrio")
 
 
 def method_lines(result, cfg) -> list[tuple[str, str]]:
@@ -366,22 +380,28 @@ CAUTION_TEXT = ("Screening results only. Every finding must be confirmed by fiel
                 "used here.")
 
 
-def write_outputs(folder: Path, result, summary: dict, cfg) -> None:
-    """Every output file of the run, into ``folder``, in the run's units."""
-    from .report import build_report, write_profiles_pdf
+def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> None:
+    """Every output file of the run, into ``folder``, in the run's units. With a process
+    ``pool``, the report's figures are drawn there while the tables are written here."""
+    from .report import build_report, curve_png, network_map, png_data_uri, report_pages, write_profiles_pdf
     from .units import OutputUnits
 
     units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
+    pages = report_pages(result, cfg, units)
+    # drawing in the pool pays when its processes are already running or the pages are many
+    warm = result.chunks.get("computed", 0) > 1
+    use_pool = pool is not None and (warm or len(pages) >= 25)
+    futures = [pool.submit(curve_png, p["spec"]) for p in pages] if use_pool else None
     ev = result.evaluation
     curves = curves_table(ev.curves)
     defs = deficiencies_table(ev.inventory)
-    hcurves = _round(horizontal_table(result, cfg))
+    hcurves = _round(result.hcurves)
     roads = result.road_table()
     notes = result.data_notes()
     out = {name: _round(units.table(frame)) for name, frame in
            (("curves", curves), ("deficiencies", defs), ("hcurves", hcurves), ("roads", roads), ("notes", notes),
             ("summary", ev.summary))}
-    write_profiles(folder / "profiles.parquet", units.table(result.profiles))
+    write_profiles_from_work(folder / "profiles.parquet", result, units)
     out["curves"].to_csv(folder / "curves.csv", index=False)
     out["deficiencies"].to_csv(folder / "deficiencies.csv", index=False)
     out["hcurves"].to_csv(folder / "horizontal_curves.csv", index=False)
@@ -403,41 +423,9 @@ def write_outputs(folder: Path, result, summary: dict, cfg) -> None:
                 "Horizontal curves": out["hcurves"], "Roads": out["roads"], "Data notes": out["notes"]},
                method, summary_lines, units)
     write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves, units)
-    (folder / "report.html").write_text(build_report(result, summary, cfg, units, CAUTION_TEXT, method),
-                                        encoding="utf-8")
+    map_png = png_data_uri(network_map(result, ev.inventory, units))
+    pngs = [f.result() for f in futures] if futures is not None else None
+    (folder / "report.html").write_text(build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs,
+                                                     map_png), encoding="utf-8")
     if cfg["output.profiles_pdf"]:
         write_profiles_pdf(folder / "profiles.pdf", result, units)
-
-
-def horizontal_table(result, cfg) -> pd.DataFrame:
-    """Horizontal curves with the minimum-radius check, the sight line offset for the required
-    SSD and the predicted operating speed."""
-    from .plan import min_radius_m, sight_line_offset
-
-    hc = result.hcurves.copy()
-    if not len(hc):
-        for c in HCURVE_EXTRA:
-            hc[c] = pd.Series(dtype=float)
-        return hc
-    cs = result.criteria
-    prof = result.profiles.set_index("road_id")
-    speed, vmax, ssd = [], [], []
-    for r in hc.itertuples():
-        p = prof.loc[[r.road_id]]
-        on = (p["chainage_m"] >= r.start_m) & (p["chainage_m"] <= r.end_m)
-        sp = p.loc[on, ["speed_fwd_kmh", "speed_back_kmh"]].to_numpy() if on.any() else np.array([[np.nan]])
-        v85 = p.loc[on, ["v85_fwd_kmh", "v85_back_kmh"]].to_numpy() if on.any() else np.array([[np.nan]])
-        speed.append(float(np.nanmax(sp)))
-        vmax.append(float(np.nanmin(v85)))
-        ssd.append(float(cs.ssd_design(speed[-1] / cs.speed_to_kmh)) * cs.length_to_m if np.isfinite(speed[-1])
-                   else np.nan)
-    hc["speed_kmh"] = speed
-    f = np.interp(hc["speed_kmh"], cs.friction["speed"] * cs.speed_to_kmh, cs.friction["f_max"])
-    hc["r_min_m"] = min_radius_m(hc["speed_kmh"], cfg["plan.e_max_pct"] / 100.0, f)
-    hc["below_min_radius"] = hc["radius_m"] < hc["r_min_m"]
-    hc["ssd_required_m"] = ssd
-    r_inside = hc["radius_m"] - cfg["plan.lane_width_m"] / 2
-    hc["hso_m"] = sight_line_offset(r_inside, hc["ssd_required_m"])
-    hc["hso_valid"] = hc["ssd_required_m"] <= hc["length_m"]
-    hc["v85_kmh"] = vmax
-    return hc

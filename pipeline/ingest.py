@@ -160,12 +160,14 @@ def numeric_column(frame: pd.DataFrame, column: str, path: Path) -> np.ndarray:
 
 
 def id_strings(values: pd.Series) -> np.ndarray:
-    """Identifiers as text; 12.0 read from a numeric column becomes '12'."""
+    """Identifiers as text (vectorised); 12.0 read from a numeric column becomes '12'."""
+    values = pd.Series(values)
     if pd.api.types.is_float_dtype(values):
         finite = values.dropna()
         if len(finite) and np.all(np.mod(finite, 1) == 0):
-            return np.array([None if pd.isna(v) else str(int(v)) for v in values], dtype=object)
-    return np.array([None if pd.isna(v) else str(v).strip() for v in values], dtype=object)
+            values = values.astype("Int64")
+    text = values.astype("string").str.strip()
+    return text.to_numpy(dtype=object, na_value=None)
 
 
 # ------------------------------------------------------------------------ CRS
@@ -422,14 +424,39 @@ class DemGround:
 
 @dataclass
 class PointGround:
-    """Ground points grouped by road: ``x, y`` (in ``crs``) or ``chainage_m``, and ``z_m``."""
+    """Ground points, sorted and grouped by road id in compact arrays: ``x, y`` (in ``crs``) or
+    ``chainage_m``, and ``z_m``. :meth:`points` gives one road's points, :meth:`subset` a
+    smaller set to hand to a worker."""
 
     path: Path
     crs: pyproj.CRS | None
-    by_road: dict[str, pd.DataFrame]
-    rows: int
     mode: str  # "xy" or "chainage"
+    rows: int
+    arrays: dict[str, np.ndarray]
+    groups: dict[str, tuple[int, int]]
     kind: str = "points"
+
+    def points(self, road_id: str) -> dict[str, np.ndarray] | None:
+        span = self.groups.get(road_id)
+        if span is None:
+            return None
+        a, b = span
+        return {k: v[a:b] for k, v in self.arrays.items()}
+
+    def subset(self, road_ids) -> "PointGround":
+        parts = {k: [] for k in self.arrays}
+        groups, n = {}, 0
+        for rid in dict.fromkeys(road_ids):
+            p = self.points(rid)
+            if p is None:
+                continue
+            m = len(p["z_m"])
+            for k in parts:
+                parts[k].append(p[k])
+            groups[rid] = (n, n + m)
+            n += m
+        arrays = {k: (np.concatenate(v) if v else np.zeros(0)) for k, v in parts.items()}
+        return PointGround(path=self.path, crs=self.crs, mode=self.mode, rows=n, arrays=arrays, groups=groups)
 
     def describe(self) -> dict:
         return {"kind": "points", "mode": self.mode, "rows": self.rows,
@@ -515,27 +542,41 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
                 f"{path}: no column {col!r} (columns: {', '.join(map(str, frame.columns[:12]))}); "
                 f"ground points need {id_col}, {z_col} and either x, y or chainage_m"
             )
-    out = pd.DataFrame({"road_id": id_strings(frame[id_col]), "z_m": numeric_column(frame, z_col, path) * factor})
+    # ids are factorised as read: only the distinct ids become Python strings; raw values
+    # that read as the same id (" A1" and "A1", 12.0 and 12) are merged afterwards
+    raw_codes, raw_uniques = pd.factorize(frame[id_col], sort=False, use_na_sentinel=True)
+    raw_text = pd.Series(id_strings(pd.Series(raw_uniques)), dtype=object).replace("", None)
+    text_codes, uniques = pd.factorize(raw_text, sort=False, use_na_sentinel=True)
+    codes = np.where(raw_codes >= 0, np.append(text_codes, -1)[raw_codes], -1)
+    unique_ids = [str(u) for u in uniques]
+    keep = codes >= 0
+    cols = {"z_m": numeric_column(frame, z_col, path) * factor}
     geom = frame["geometry"] if "geometry" in frame.columns else None
     if "chainage_m" in frame.columns:
         mode = "chainage"
-        out["chainage_m"] = numeric_column(frame, "chainage_m", path)
+        cols["chainage_m"] = numeric_column(frame, "chainage_m", path)
     elif {"x", "y"} <= set(frame.columns):
         mode = "xy"
-        out["x"] = numeric_column(frame, "x", path)
-        out["y"] = numeric_column(frame, "y", path)
+        cols["x"] = numeric_column(frame, "x", path)
+        cols["y"] = numeric_column(frame, "y", path)
     elif geom is not None:
         mode = "xy"
-        out["x"] = shapely.get_x(geom.to_numpy())
-        out["y"] = shapely.get_y(geom.to_numpy())
+        cols["x"] = shapely.get_x(geom.to_numpy())
+        cols["y"] = shapely.get_y(geom.to_numpy())
     else:
         raise InputError(f"{path}: ground points need columns x, y (or a point geometry) or chainage_m")
+    del frame
     if mode == "xy":
         if crs is None:
             crs = roads.source_crs
             roads.notes.append(f"{path.name}: no CRS stated for ground points; taken as the roads' CRS")
-    by_road = {k: g.drop(columns="road_id").reset_index(drop=True) for k, g in out.groupby("road_id", sort=False)}
-    return PointGround(path=path, crs=crs, by_road=by_road, rows=len(out), mode=mode)
+    order = np.argsort(codes, kind="stable")[np.count_nonzero(~keep):]  # rows without an id go first: dropped
+    sorted_codes = codes[order]
+    starts = np.searchsorted(sorted_codes, np.arange(len(uniques)), side="left")
+    stops = np.searchsorted(sorted_codes, np.arange(len(uniques)), side="right")
+    arrays = {c: np.asarray(v, dtype=float)[order] for c, v in cols.items()}
+    groups = {u: (int(a), int(b)) for u, a, b in zip(unique_ids, starts, stops)}
+    return PointGround(path=path, crs=crs, mode=mode, rows=int(len(order)), arrays=arrays, groups=groups)
 
 
 

@@ -48,17 +48,21 @@ HCURVE_COLUMNS = ["hcurve_no", "start_m", "end_m", "length_m", "radius_m", "defl
                   "fit_rmse_m"]
 
 
-def heading_curvature(line, step_m: float, smooth_m: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+def heading_curvature(line, step_m: float, smooth_m: float, poly=None
+                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
     """Chainage (m), smoothed heading (rad, anticlockwise from east, unwrapped), curvature
     (1/m, positive turning left) every ``step_m`` along ``line``, and the standard deviation of
     the curvature's noise (1/m): the heading's own high-frequency scatter (1.4826 MAD of raw
     minus smoothed) times the noise gain of the derivative filter."""
     from scipy.signal import savgol_coeffs, savgol_filter
 
-    length = float(shapely.length(line))
+    from .profile import Polyline
+
+    poly = poly or Polyline(line)
+    length = poly.length
     n = max(int(np.floor(length / step_m)) + 1, 2)
     ch = np.linspace(0.0, length, n)
-    xy = shapely.get_coordinates(shapely.line_interpolate_point(line, ch))
+    xy = np.column_stack(poly.at(ch))
     d = np.diff(xy, axis=0)
     seg = np.unwrap(np.arctan2(d[:, 1], d[:, 0]))
     # heading at the points: mean of the segments either side
@@ -77,33 +81,34 @@ def heading_curvature(line, step_m: float, smooth_m: float) -> tuple[np.ndarray,
 
 
 def fit_circle(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:
-    """Least-squares circle through points: Kasa's algebraic fit, then geometric refinement.
-    Returns centre x, centre y, radius (m) and RMS orthogonal distance (m)."""
-    from scipy.optimize import least_squares
-
+    """Least-squares circle through points: Kasa's algebraic fit, then geometric (orthogonal
+    distance) refinement by Gauss-Newton on centre and radius. Returns centre x, centre y,
+    radius (m) and RMS orthogonal distance (m)."""
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     mx, my = x.mean(), y.mean()
     u, v = x - mx, y - my
     A = np.column_stack([u, v, np.ones_like(u)])
-    b = u * u + v * v
-    (p, q, c), *_ = np.linalg.lstsq(A, b, rcond=None)
+    (p, q, c), *_ = np.linalg.lstsq(A, u * u + v * v, rcond=None)
     cx, cy = p / 2, q / 2
     r = np.sqrt(max(c + cx * cx + cy * cy, 1e-12))
-
-    def resid(t):
-        return np.hypot(u - t[0], v - t[1]) - t[2]
-
-    sol = least_squares(resid, [cx, cy, r], method="lm")
-    cx, cy, r = sol.x
-    rms = float(np.sqrt(np.mean(resid(sol.x) ** 2)))
+    for _ in range(20):
+        du, dv = u - cx, v - cy
+        rho = np.maximum(np.hypot(du, dv), 1e-12)
+        res = rho - r
+        J = np.column_stack([-du / rho, -dv / rho, -np.ones_like(rho)])
+        step, *_ = np.linalg.lstsq(J, -res, rcond=None)
+        cx, cy, r = cx + step[0], cy + step[1], r + step[2]
+        if np.max(np.abs(step)) < 1e-9 * max(abs(r), 1.0):
+            break
+    rms = float(np.sqrt(np.mean((np.hypot(u - cx, v - cy) - r) ** 2)))
     return float(cx + mx), float(cy + my), float(abs(r)), rms
 
 
-def _detect(line, opts: dict, smooth_m: float) -> list[dict]:
+def _detect(line, opts: dict, smooth_m: float, poly) -> list[dict]:
     """Curves found with heading smoothed over ``smooth_m``."""
     opts = opts | {"smooth_m": smooth_m}
-    ch, head, curv, k_noise = heading_curvature(line, opts["step_m"], smooth_m)
+    ch, head, curv, k_noise = heading_curvature(line, opts["step_m"], smooth_m, poly)
     k_min = max(1.0 / opts["max_radius_m"], 4.0 * k_noise)
     sign = (np.sign(curv) * (np.abs(curv) > k_min)).astype(int)
     # a bend briefly dipping under the threshold (noise) is still one bend
@@ -138,8 +143,7 @@ def _detect(line, opts: dict, smooth_m: float) -> list[dict]:
         for _ in range(2):
             if end - start < opts["min_length_m"]:
                 break
-            pts = shapely.get_coordinates(shapely.line_interpolate_point(
-                line, np.linspace(start, end, max(int((end - start) / 2.0), 8))))
+            pts = np.column_stack(poly.at(np.linspace(start, end, max(int((end - start) / 2.0), 8))))
             _, _, radius, rms = fit_circle(pts[:, 0], pts[:, 1])
             arc = min(radius * np.radians(abs(defl)), ch[-1])
             start, end = max(centre - arc / 2, 0.0), min(centre + arc / 2, ch[-1])
@@ -151,19 +155,22 @@ def _detect(line, opts: dict, smooth_m: float) -> list[dict]:
     return rows
 
 
-def horizontal_curves(line, opts: dict | None = None) -> pd.DataFrame:
+def horizontal_curves(line, opts: dict | None = None, poly=None) -> pd.DataFrame:
     """Circular curves of a centreline (working CRS, metres); see module notes.
 
     Two scales: heading smoothed over ``smooth_m`` finds sharp curves close together; smoothed
     over three times that, it finds long flat curves that noise breaks up at the first scale.
     A coarse-scale curve replaces the fine-scale pieces inside it when they all turn its way.
     """
+    from .profile import Polyline
+
     opts = DEFAULTS | (opts or {})
-    length = float(shapely.length(line))
+    poly = poly or Polyline(line)
+    length = poly.length
     if length < 3 * opts["step_m"]:
         return pd.DataFrame(columns=HCURVE_COLUMNS)
-    fine = _detect(line, opts, opts["smooth_m"])
-    coarse = _detect(line, opts, 3 * opts["smooth_m"]) if length > 6 * opts["smooth_m"] else []
+    fine = _detect(line, opts, opts["smooth_m"], poly)
+    coarse = _detect(line, opts, 3 * opts["smooth_m"], poly) if length > 6 * opts["smooth_m"] else []
     rows = list(fine)
     for c in coarse:
         inside = [f for f in rows if f["end_m"] > c["start_m"] - opts["smooth_m"]

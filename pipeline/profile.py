@@ -9,8 +9,9 @@ is done in :mod:`pipeline.ingest`.
 - DEM elevations are interpolated bilinearly between the four surrounding cell
   centres (the standard bilinear form, e.g. Press et al., *Numerical Recipes*,
   3rd ed., section 3.6). A station touching a nodata cell stays missing.
-- Ground points are located on the centreline (shapely 2 ``line_locate_point``)
-  and reduced to stations by a local straight-line fit within each station's
+- Ground points are located on the centreline (nearest point, as shapely's
+  ``line_locate_point``, found through a KD-tree of the vertices; see
+  :class:`Polyline`) and reduced to stations by a local straight-line fit within each station's
   bin of half a step either side, which is unbiased on a constant grade.
 - Gaps in the ground data: a station between data points less than
   ``max_gap_m`` apart is interpolated and marked ``filled``; across a longer gap
@@ -37,11 +38,68 @@ def station_chainages(length_m: float, step_m: float) -> np.ndarray:
     return np.arange(n, dtype=float) * step_m
 
 
-def points_along(line, chainage_m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Coordinates of the points at ``chainage_m`` along ``line`` (working CRS)."""
-    pts = shapely.line_interpolate_point(line, np.asarray(chainage_m, dtype=float))
-    xy = shapely.get_coordinates(pts)
-    return xy[:, 0], xy[:, 1]
+class Polyline:
+    """A centreline as vertex arrays with cumulative chainage, for fast vectorised
+    interpolation (binary search, O(log n) a point) and location of points (a KD-tree of the
+    vertices of the line segmentised to ``seg_m``, then exact projection onto the segments
+    around the nearest vertices). Same planar geometry as shapely's ``line_interpolate_point``
+    and ``line_locate_point``, which walk every vertex for every point."""
+
+    def __init__(self, line, seg_m: float = 10.0):
+        xy = shapely.get_coordinates(shapely.segmentize(line, seg_m))
+        keep = np.concatenate([[True], np.any(np.diff(xy, axis=0) != 0, axis=1)])
+        self.xy = xy[keep]
+        d = np.hypot(*np.diff(self.xy, axis=0).T)
+        self.chain = np.concatenate([[0.0], np.cumsum(d)])
+        self.length = float(self.chain[-1])
+        self._tree = None
+
+    def at(self, chainage_m) -> tuple[np.ndarray, np.ndarray]:
+        c = np.clip(np.asarray(chainage_m, dtype=float), 0.0, self.length)
+        return np.interp(c, self.chain, self.xy[:, 0]), np.interp(c, self.chain, self.xy[:, 1])
+
+    def cut(self, start_m: float, end_m: float) -> np.ndarray:
+        """Vertices of the piece of line between two chainages (interpolated ends, the line's
+        own vertices between), as (n, 2); a single chainage gives two equal points."""
+        a, b = sorted((float(np.clip(start_m, 0, self.length)), float(np.clip(end_m, 0, self.length))))
+        i, j = np.searchsorted(self.chain, [a, b], side="right")
+        inner = self.xy[i:j] if j > i else self.xy[:0]
+        ends = np.column_stack(self.at(np.array([a, b])))
+        return np.vstack([ends[:1], inner, ends[1:]])
+
+    def locate(self, x, y, k: int = 4) -> tuple[np.ndarray, np.ndarray]:
+        """Chainage (m) of each point's nearest point on the line and its signed offset (m,
+        + = left of the direction of increasing chainage)."""
+        from scipy.spatial import cKDTree
+
+        if self._tree is None:
+            self._tree = cKDTree(self.xy)
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        nseg = len(self.xy) - 1
+        if nseg < 1:
+            return np.zeros(len(x)), np.hypot(x - self.xy[0, 0], y - self.xy[0, 1])
+        _, idx = self._tree.query(np.column_stack([x, y]), k=min(k, len(self.xy)))
+        idx = np.atleast_2d(idx.T).T if idx.ndim == 1 else idx
+        # segments either side of each candidate vertex
+        segs = np.clip(np.concatenate([idx - 1, idx], axis=1), 0, nseg - 1)
+        a = self.xy[segs]
+        b = self.xy[segs + 1]
+        ab = b - a
+        L2 = np.maximum(np.sum(ab * ab, axis=2), 1e-300)
+        px = np.stack([x, y], axis=1)[:, None, :]
+        t = np.clip(np.sum((px - a) * ab, axis=2) / L2, 0.0, 1.0)
+        foot = a + t[..., None] * ab
+        dist = np.hypot(*(px - foot).transpose(2, 0, 1))
+        j = np.argmin(dist, axis=1)
+        rows = np.arange(len(x))
+        s, tt = segs[rows, j], t[rows, j]
+        chain = self.chain[s] + tt * (self.chain[s + 1] - self.chain[s])
+        abj = ab[rows, j]
+        rel = (px[:, 0, :] - foot[rows, j])
+        side = np.sign(abj[:, 0] * rel[:, 1] - abj[:, 1] * rel[:, 0])
+        side[side == 0] = 1.0
+        return chain, dist[rows, j] * side
 
 
 def map_to_pixel(affine, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -91,18 +149,7 @@ def bilinear(array: np.ndarray, affine, x: np.ndarray, y: np.ndarray) -> np.ndar
 
 def locate_points(line, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Chainage (m) of each point's nearest point on ``line`` and its signed offset (m, + = left)."""
-    pts = shapely.points(np.asarray(x, dtype=float), np.asarray(y, dtype=float))
-    chain = shapely.line_locate_point(line, pts)
-    foot = shapely.get_coordinates(shapely.line_interpolate_point(line, chain))
-    length = shapely.length(line)
-    ahead = shapely.get_coordinates(shapely.line_interpolate_point(line, np.minimum(chain + 0.5, length)))
-    behind = shapely.get_coordinates(shapely.line_interpolate_point(line, np.maximum(chain - 0.5, 0.0)))
-    tx, ty = ahead[:, 0] - behind[:, 0], ahead[:, 1] - behind[:, 1]
-    dx, dy = np.asarray(x) - foot[:, 0], np.asarray(y) - foot[:, 1]
-    dist = np.hypot(dx, dy)
-    side = np.sign(tx * dy - ty * dx)
-    side[side == 0] = 1.0
-    return chain, dist * side
+    return Polyline(line).locate(x, y)
 
 
 def regularise(chain: np.ndarray, z: np.ndarray, stations: np.ndarray, step_m: float,

@@ -41,10 +41,11 @@ def _mpl():
     return plt
 
 
-def png_data_uri(fig, dpi: int = 110) -> str:
+def png_data_uri(fig, dpi: int = 100) -> str:
+    """The figure as an inline PNG. Figures are laid out when made, so one rendering pass does."""
     plt = _mpl()
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi, bbox_inches="tight")
+    fig.savefig(buf, format="png", dpi=dpi)
     plt.close(fig)
     return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
@@ -64,31 +65,40 @@ def network_map(result, inventory: pd.DataFrame, units):
     """Roads in grey, deficient stretches coloured by severity, top ranks labelled, with a
     legend, a scale bar and a north arrow; drawn in the working (metric, north-up) CRS."""
     import shapely
+    from matplotlib.collections import LineCollection
+
+    from .profile import Polyline
 
     plt = _mpl()
     fig, ax = plt.subplots(figsize=(9.0, 7.0))
+    fig.subplots_adjust(left=0.12, right=0.97, bottom=0.14, top=0.94)
     t = result.roads.table
     lines = t[t["geometry"].notna()]
-    for _, r in lines.iterrows():
-        xy = shapely.get_coordinates(r["geometry"])
-        ax.plot(xy[:, 0], xy[:, 1], color="#9A9A9A", lw=1.6, zorder=1, solid_capstyle="round")
-        mid = shapely.get_coordinates(shapely.line_interpolate_point(r["geometry"], 0.5, normalized=True))[0]
-        ax.annotate(str(r["road_id"]), mid, fontsize=8, color="#404040", xytext=(4, 4), textcoords="offset points")
+    coords = [shapely.get_coordinates(g) for g in lines["geometry"]]
+    ax.add_collection(LineCollection(coords, colors="#9A9A9A", linewidths=1.6, zorder=1))
+    if len(lines) <= 60:
+        for rid, xy in zip(lines["road_id"], coords):
+            mid = xy[len(xy) // 2]
+            ax.annotate(str(rid), mid, fontsize=8, color="#404040", xytext=(4, 4), textcoords="offset points")
     geo = t.set_index("road_id")["geometry"]
-    drawn = set()
-    for _, d in inventory.iterrows():
-        line = geo.get(d["road_id"])
-        if line is None:
-            continue
-        seg = shapely.ops.substring(line, max(d["from_m"] - 5, 0), min(d["to_m"] + 5, line.length))
-        xy = shapely.get_coordinates(seg)
-        st = SEVERITY_STYLE[d["severity"]]
-        ax.plot(xy[:, 0], xy[:, 1], color=st["color"], lw=st["lw"], zorder=2 + list(SEVERITY_STYLE).index(d["severity"]),
-                solid_capstyle="butt", label=d["severity"] if d["severity"] not in drawn else None)
-        drawn.add(d["severity"])
-        if d["rank"] <= 10:
+    polys: dict = {}
+    for sev, st in SEVERITY_STYLE.items():
+        rows = inventory[inventory["severity"] == sev]
+        segs = []
+        for rid, a, b in zip(rows["road_id"], rows["from_m"], rows["to_m"]):
+            if rid not in polys and geo.get(rid) is not None:
+                polys[rid] = Polyline(geo[rid])
+            if rid in polys:
+                segs.append(polys[rid].cut(a - 5, b + 5))
+        if segs:
+            ax.add_collection(LineCollection(segs, colors=st["color"], linewidths=st["lw"],
+                                             zorder=2 + list(SEVERITY_STYLE).index(sev)))
+    for _, d in inventory[inventory["rank"] <= 10].iterrows():
+        if d["road_id"] in polys:
+            xy = polys[d["road_id"]].cut(d["from_m"], d["to_m"])
             ax.annotate(f"#{int(d['rank'])}", xy[len(xy) // 2], fontsize=8.5, fontweight="bold", color="black",
                         xytext=(-6, -12), textcoords="offset points", zorder=6)
+    ax.autoscale_view()
     ax.set_aspect("equal")
     ax.set_xlabel("easting in the working CRS (m)")
     ax.set_ylabel("northing in the working CRS (m)")
@@ -127,7 +137,8 @@ def curve_figure(prof: pd.DataFrame, curve: pd.Series, rows: pd.DataFrame, hcurv
     hi = min(max(curve["pvt_m"], worst["to_m"]) + span, prof["chainage_m"].max())
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
     L, E = units.length, units.length_label
-    fig, ax = plt.subplots(figsize=(9.0, 3.9))
+    fig, ax = plt.subplots(figsize=(10.5, 3.9))
+    fig.subplots_adjust(left=0.07, right=0.70, bottom=0.14, top=0.91)
     masked = p["ground_flag"] == "masked"
     ax.plot(L(p.loc[~masked, "chainage_m"]), L(p.loc[~masked, "ground_z_m"]), ".", ms=2.5, color="#7A7A7A",
             label="ground samples")
@@ -193,6 +204,7 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
     L, E = units.length, units.length_label
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
     fig, ax = plt.subplots(figsize=(11.0, 4.6))
+    fig.subplots_adjust(left=0.07, right=0.98, bottom=0.12, top=0.92)
     ax.plot(L(p["chainage_m"]), L(p["ground_z_m"]), ".", ms=2, color="#7A7A7A", label="ground samples")
     ax.plot(L(p["chainage_m"]), L(p["fitted_z_m"]), "-", color="black", lw=1.3, label="recovered alignment")
     shown = set()
@@ -218,6 +230,12 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
     ax.grid(alpha=0.3)
     ax.legend(loc="best", fontsize=8)
     return fig
+
+
+def curve_png(spec: dict) -> str:
+    """One curve page's figure as an inline PNG (a top-level function, so that a pool of
+    processes can draw the pages side by side)."""
+    return png_data_uri(curve_figure(**spec))
 
 
 # ------------------------------------------------------------------- HTML
@@ -275,13 +293,49 @@ def _table(frame: pd.DataFrame, numeric_nd: dict[str, int]) -> str:
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
-def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]]) -> str:
-    """The whole report as one HTML string."""
+def report_pages(result, cfg, units) -> list[dict]:
+    """The deficient curves given a page, in rank order, each with what its figure needs
+    (``spec``, for :func:`curve_png`, small enough to send to another process)."""
+    inv, curves = result.evaluation.inventory, result.evaluation.curves
+    if not len(inv):
+        return []
+    rules = result.criteria.sight_rules()
+    hcurves_all = result.hcurves
+    order = inv.dropna(subset=["curve_no"]).groupby(["road_id", "curve_no"], sort=False)["rank"].min()
+    order = order.sort_values().head(int(cfg["output.report_curves"]))
+    cidx = curves.set_index(["road_id", "curve_no"])
+    profiles = result.road_profiles({rid for rid, _ in order.index})
+    pages = []
+    for (rid, cno), rank in order.items():
+        c = cidx.loc[(rid, cno)]
+        c = c if isinstance(c, pd.Series) else c.iloc[0]
+        c = c.copy()
+        c["curve_no"] = cno
+        rows = inv[(inv["road_id"] == rid) & (inv["curve_no"] == cno)]
+        hc = hcurves_all[hcurves_all["road_id"] == rid] if len(hcurves_all) else hcurves_all
+        name = rows["road_name"].iloc[0] if isinstance(rows["road_name"].iloc[0], str) else ""
+        title = f"{rid} {name}: curve {cno} ({c['kind']}), rank {int(rank)}"
+        # only the stretch the figure shows travels to a drawing process
+        span = max(float(rows["ssd_required_m"].max()), 150.0) * 1.1 + 50.0
+        lo, hi = min(c["pvc_m"], rows["from_m"].min()) - span, max(c["pvt_m"], rows["to_m"].max()) + span
+        rp = profiles[rid]
+        rp = rp[(rp["chainage_m"] >= lo) & (rp["chainage_m"] <= hi)]
+        pages.append({"road_id": rid, "curve_no": cno, "curve": c, "rows": rows, "title": title,
+                      "spec": dict(prof=rp, curve=c, rows=rows, hcurves=hc, rules=rules, units=units, title=title)})
+    return pages
+
+
+def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]],
+                 pages: list[dict] | None = None, pngs: list[str] | None = None, map_png: str | None = None) -> str:
+    """The whole report as one HTML string. ``pages`` (from :func:`report_pages`) and their
+    figures ``pngs`` may be made beforehand, elsewhere; otherwise they are made here."""
     ev = result.evaluation
     inv = ev.inventory
     curves = ev.curves
-    prof = result.profiles
-    rules = result.criteria.sight_rules()
+    if pages is None:
+        pages = report_pages(result, cfg, units)
+    if pngs is None:
+        pngs = [curve_png(p["spec"]) for p in pages]
     L, E, V, S = units.length, units.length_label, units.speed, units.speed_label
     r = summary["roads"]
     net = ev.summary[ev.summary["road_class"] == "network"].iloc[0] if len(ev.summary) else None
@@ -319,8 +373,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
 
     # --- map
     parts.append("<h2 id='map'>Network overview</h2>")
+    map_png = map_png or png_data_uri(network_map(result, inv, units))
     parts.append(f"<img alt='Map of the audited roads with deficient stretches coloured by severity' "
-                 f"src='{png_data_uri(network_map(result, inv, units))}'>")
+                 f"src='{map_png}'>")
 
     # --- inventory
     parts.append("<h2 id='inventory'>Ranked inventory (top 50)</h2>")
@@ -343,48 +398,34 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
 
     # --- one page per deficient curve
     parts.append("<h2 id='curves'>Deficient curves</h2>")
-    n_pages = int(cfg["output.report_curves"])
-    if len(inv):
-        order = inv.dropna(subset=["curve_no"]).groupby(["road_id", "curve_no"], sort=False)["rank"].min()
-        order = order.sort_values().head(n_pages)
-        parts.append(f"<p>{len(order)} curve(s), in rank order; each long profile shows the driver position with "
+    if pages:
+        parts.append(f"<p>{len(pages)} curve(s), in rank order; each long profile shows the driver position with "
                      f"the least sight distance and the sight line it has against the one it needs.</p>")
-        cidx = curves.set_index(["road_id", "curve_no"])
-        for (rid, cno), rank in order.items():
-            c = cidx.loc[(rid, cno)]
-            c = c if isinstance(c, pd.Series) else c.iloc[0]
-            c = c.copy()
-            c["curve_no"] = cno
-            rows = inv[(inv["road_id"] == rid) & (inv["curve_no"] == cno)]
-            rp = prof[prof["road_id"] == rid]
-            hc = result.hcurves
-            hc = hc[hc["road_id"] == rid] if len(hc) else hc
-            name = rows["road_name"].iloc[0] if isinstance(rows["road_name"].iloc[0], str) else ""
-            title = f"{rid} {name}: curve {cno} ({c['kind']}), rank {int(rank)}"
-            fig = curve_figure(rp, c, rows, hc, rules, units, title)
-            worst = rows.loc[rows["rank"].idxmin()]
-            facts = [
-                ("kind, A, L, K", f"{c['kind']}, A = {c['a_pct']:.2f} %, L = {L(c['length_m']):.0f} {E}, "
-                                  f"K = {L(c['k']):.1f} (table {L(c['k_required']):.0f}) {E}/%"),
-                ("PVC / PVI / PVT", f"{L(c['pvc_m']):,.0f} / {L(c['pvi_m']):,.0f} / {L(c['pvt_m']):,.0f} {E}"),
-                ("grades", f"{c['g1_pct']:+.2f} % to {c['g2_pct']:+.2f} %"),
-                ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S} ({_e(worst['speed_basis'])})"),
-                ("SSD needed / available", f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} {E} "
-                                           f"({worst['direction']} chainage)"),
-                ("speed the curve supports", f"{V(worst['supported_speed_kmh']):.0f} {S} "
-                                             f"({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
-                ("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {worst['hazard_detail']}"
-                                             if isinstance(worst.get("hazard_detail"), str) else "")),
-                ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
-                                         zip(rows["direction"], rows["from_m"], rows["to_m"]))),
-                ("fit", f"RMSE {L(c['fit_rmse_m']):.3f} {E}, confidence {c['confidence']}"
-                        + (f" ({_e(c['flags'])})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
-                ("first thought on treatment", _e(worst["treatment_hint"])),
-            ]
-            ft = "".join(f"<tr><td>{_e(k)}</td><td>{v}</td></tr>" for k, v in facts)
-            parts.append(f"<section class='curve sev-{_e(worst['severity'])}'><h3>{_e(title)}</h3>"
-                         f"<img alt='Long profile of {_e(rid)} curve {cno}' src='{png_data_uri(fig)}'>"
-                         f"<table class='facts'>{ft}</table></section>")
+    for page, png in zip(pages, pngs):
+        rid, cno, c, rows, title = page["road_id"], page["curve_no"], page["curve"], page["rows"], page["title"]
+        worst = rows.loc[rows["rank"].idxmin()]
+        facts = [
+            ("kind, A, L, K", f"{c['kind']}, A = {c['a_pct']:.2f} %, L = {L(c['length_m']):.0f} {E}, "
+                              f"K = {L(c['k']):.1f} (table {L(c['k_required']):.0f}) {E}/%"),
+            ("PVC / PVI / PVT", f"{L(c['pvc_m']):,.0f} / {L(c['pvi_m']):,.0f} / {L(c['pvt_m']):,.0f} {E}"),
+            ("grades", f"{c['g1_pct']:+.2f} % to {c['g2_pct']:+.2f} %"),
+            ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S} ({_e(worst['speed_basis'])})"),
+            ("SSD needed / available", f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} {E} "
+                                       f"({worst['direction']} chainage)"),
+            ("speed the curve supports", f"{V(worst['supported_speed_kmh']):.0f} {S} "
+                                         f"({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
+            ("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {worst['hazard_detail']}"
+                                         if isinstance(worst.get("hazard_detail"), str) else "")),
+            ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
+                                     zip(rows["direction"], rows["from_m"], rows["to_m"]))),
+            ("fit", f"RMSE {L(c['fit_rmse_m']):.3f} {E}, confidence {c['confidence']}"
+                    + (f" ({_e(c['flags'])})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
+            ("first thought on treatment", _e(worst["treatment_hint"])),
+        ]
+        ft = "".join(f"<tr><td>{_e(k)}</td><td>{v}</td></tr>" for k, v in facts)
+        parts.append(f"<section class='curve sev-{_e(worst['severity'])}'><h3>{_e(title)}</h3>"
+                     f"<img alt='Long profile of {_e(rid)} curve {cno}' src='{png}'>"
+                     f"<table class='facts'>{ft}</table></section>")
 
     # --- method
     parts.append("<h2 id='method' class='curve'>Method and criteria</h2>")
@@ -424,21 +465,21 @@ def write_profiles_pdf(path, result, units, page_m: float = 3000.0) -> int:
     from matplotlib.backends.backend_pdf import PdfPages
 
     ev = result.evaluation
-    prof = result.profiles
     pages = 0
+    roads = result.road_table()
     with PdfPages(path) as pdf:
-        for o in result.outcomes:
-            if o.status != "evaluated" or o.profile is None:
+        for rid, name in zip(roads.loc[roads["status"] == "evaluated", "road_id"],
+                             roads.loc[roads["status"] == "evaluated", "name"]):
+            rp = result.road_profile(rid)
+            if not len(rp):
                 continue
-            rp = prof[prof["road_id"] == o.road_id]
-            cv = ev.curves[ev.curves["road_id"] == o.road_id]
-            rows = ev.inventory[ev.inventory["road_id"] == o.road_id]
+            cv = ev.curves[ev.curves["road_id"] == rid]
+            rows = ev.inventory[ev.inventory["road_id"] == rid]
             end = float(rp["chainage_m"].max())
             n = max(int(np.ceil(end / page_m)), 1)
-            name = result.roads.table.set_index("road_id").at[o.road_id, "name"]
             for k in range(n):
                 lo, hi = k * end / n, (k + 1) * end / n
-                title = f"{o.road_id} {name or ''}: long profile" + (f", sheet {k + 1} of {n}" if n > 1 else "")
+                title = f"{rid} {name or ''}: long profile" + (f", sheet {k + 1} of {n}" if n > 1 else "")
                 fig = road_figure(rp, cv, rows, units, title, lo, hi)
                 pdf.savefig(fig)
                 _mpl().close(fig)

@@ -58,17 +58,18 @@ class SightRules:
             raise ValueError(f"beam_angle_deg must be between 0 and 10, got {self.beam_angle_deg!r}")
 
 
-def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: SightRules):
+def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: SightRules,
+           want_los: np.ndarray | None = None, want_beam: np.ndarray | None = None):
     """Sight from eyes at elevations ``z0`` (grades ``g0``) over the road ahead sampled at
     ``Z[:, j]`` = elevation at distance (j + 1) h (NaN = no profile).
 
     Returns per eye: line-of-sight distance and headlight reach (inf where not limited within
     the profile available), the offset index of the blocking / hit point (-1 if none), and
-    the distance of profile available ahead.
+    the distance of profile available ahead. ``want_los`` / ``want_beam`` (boolean per eye)
+    restrict each computation to the eyes where it can matter.
     """
     E, W = Z.shape
-    d = np.arange(1, W + 1) * h
-    rows = np.arange(E)
+    d = np.arange(1, W + 1, dtype=np.float64) * h
     los = np.full(E, np.inf)
     beam = np.full(E, np.inf)
     los_k = np.full(E, -1, dtype=np.int64)
@@ -76,39 +77,64 @@ def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: Sight
     gap = np.isnan(Z)
     first_gap = np.where(gap.any(axis=1), gap.argmax(axis=1), W)
     avail = np.where(first_gap > 0, d[np.maximum(first_gap - 1, 0)], 0.0)
-    valid = np.arange(W)[None, :] < first_gap[:, None]
 
-    # line of sight: the object stays in view while its slope from the eye is not below the
-    # steepest slope from the eye to the road surface before it
-    eye = z0 + rules.eye_height_m
-    s_road = np.where(valid, (Z - eye[:, None]) / d[None, :], -np.inf)
-    run = np.maximum.accumulate(s_road, axis=1)
-    before = np.concatenate([np.full((E, 1), -np.inf), run[:, :-1]], axis=1)
-    with np.errstate(invalid="ignore"):
-        f = s_road + rules.object_height_m / d[None, :] - before  # >= 0 while in view
-    hidden = (f < 0) & valid
-    has = hidden.any(axis=1)
-    r = rows[has]
-    k = hidden.argmax(axis=1)[has]
-    f1, f0 = f[r, k], f[r, k - 1]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        los[r] = d[k - 1] + np.nan_to_num(np.clip(f0 / (f0 - f1), 0.0, 1.0), nan=1.0) * h
-    masked = np.where(np.arange(W)[None, :] < k[:, None], s_road[r], -np.inf)
-    los_k[r] = masked.argmax(axis=1)  # the blocking point: steepest road point before
+    rows = np.flatnonzero(want_los) if want_los is not None else np.arange(E)
+    if len(rows):
+        # line of sight: the object stays in view while its slope from the eye is not below the
+        # steepest slope from the eye to the road surface before it
+        Zr = Z[rows]
+        valid = np.arange(W)[None, :] < first_gap[rows, None]
+        eye = (z0[rows] + rules.eye_height_m)[:, None]
+        with np.errstate(invalid="ignore"):
+            s_road = np.where(valid, (Zr - eye) / d[None, :], -np.inf)
+        run = np.maximum.accumulate(s_road, axis=1)
+        with np.errstate(invalid="ignore"):
+            f = s_road[:, 1:] + rules.object_height_m / d[None, 1:] - run[:, :-1]  # >= 0 while in view
+        hidden = (f < 0) & valid[:, 1:]
+        has = hidden.any(axis=1)
+        r = np.flatnonzero(has)
+        k = hidden.argmax(axis=1)[has] + 1  # first hidden sample (the first is always in view)
+        f1 = f[r, k - 1]
+        f0 = np.where(k >= 2, f[r, np.maximum(k - 2, 0)], np.inf)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            frac = np.where(np.isfinite(f0), f0 / (f0 - f1), 1.0)
+        los[rows[r]] = d[k - 1] + np.nan_to_num(np.clip(frac, 0.0, 1.0), nan=1.0) * h
+        masked = np.where(np.arange(W)[None, :] < k[:, None], s_road[r], -np.inf)
+        los_k[rows[r]] = masked.argmax(axis=1)  # the blocking point: steepest road point before
 
-    # headlight: clearance of the beam's upper edge above the road
-    tb = np.tan(np.radians(rules.beam_angle_deg))
-    clear = z0[:, None] + rules.headlight_height_m + d[None, :] * (g0[:, None] + tb) - Z
-    hit = (clear <= 0) & valid
-    hasb = hit.any(axis=1)
-    rb = rows[hasb]
-    kb = hit.argmax(axis=1)[hasb]
-    c1 = clear[rb, kb]
-    cprev = np.where(kb > 0, clear[rb, np.maximum(kb - 1, 0)], rules.headlight_height_m)
-    dprev = np.where(kb > 0, d[np.maximum(kb - 1, 0)], 0.0)
-    beam[rb] = dprev + np.clip(cprev / (cprev - c1), 0.0, 1.0) * h
-    beam_k[rb] = kb
+    rows = np.flatnonzero(want_beam) if want_beam is not None else np.arange(E)
+    if len(rows):
+        # headlight: clearance of the beam's upper edge above the road
+        tb = np.tan(np.radians(rules.beam_angle_deg))
+        Zr = Z[rows]
+        valid = np.arange(W)[None, :] < first_gap[rows, None]
+        clear = (z0[rows] + rules.headlight_height_m)[:, None] + d[None, :] * (g0[rows] + tb)[:, None] - Zr
+        hit = (clear <= 0) & valid
+        hasb = hit.any(axis=1)
+        rb = np.flatnonzero(hasb)
+        kb = hit.argmax(axis=1)[hasb]
+        c1 = clear[rb, kb]
+        cprev = np.where(kb > 0, clear[rb, np.maximum(kb - 1, 0)], rules.headlight_height_m)
+        dprev = np.where(kb > 0, d[np.maximum(kb - 1, 0)], 0.0)
+        beam[rows[rb]] = dprev + np.clip(cprev / (cprev - c1), 0.0, 1.0) * h
+        beam_k[rows[rb]] = kb
     return los, beam, los_k, beam_k, avail
+
+
+def _curves_ahead(ch: np.ndarray, curves, kind: str, lookahead: float, sign: int) -> np.ndarray | None:
+    """Stations with a curve of ``kind`` within the look-ahead in the direction of travel (the
+    only ones whose line of sight, for crests, or headlight reach, for sags, a curve can limit);
+    ``None`` (all stations) when no curve table is given."""
+    if curves is None:
+        return None
+    c = curves[curves["kind"] == kind]
+    out = np.zeros(len(ch), dtype=bool)
+    for lo, hi in zip(c["pvc_m"].to_numpy(float), c["pvt_m"].to_numpy(float)):
+        if sign > 0:  # the curve overlaps (s - 1, s + lookahead]
+            out |= (ch < hi + 1.0) & (ch + lookahead > lo - 1.0)
+        else:
+            out |= (ch > lo - 1.0) & (ch - lookahead < hi + 1.0)
+    return out
 
 
 def _govern(los, beam, los_k, beam_k, avail, lookahead):
@@ -145,14 +171,17 @@ def sight_from(eyes_m: np.ndarray, profile, grade, rules: SightRules, direction:
 
 
 def sight_both_ways(chainage_m: np.ndarray, profile, rules: SightRules, fine_step_m: float = 1.0,
-                    curves=None, grade=None, chunk: int = 2048) -> dict[str, np.ndarray]:
+                    curves=None, grade=None, chunk: int = 2048, headlight: bool = True) -> dict[str, np.ndarray]:
     """Available sight distance at every station, both directions.
 
     ``profile(x)`` gives the road elevation (m) at chainages ``x`` (NaN where there is
     none) and ``grade(x)`` its grade (fraction; numerical derivative if not given, which is
     slightly off right at a PVC or PVT); ``curves`` (optional) is a table with
-    ``curve_no, kind, pvc_m, pvt_m`` used to attribute each station's limit to a curve.
-    Stations must be evenly spaced.
+    ``curve_no, kind, pvc_m, pvt_m`` used to attribute each station's limit to a curve. Given
+    the curves of the profile, the line of sight is checked only where a crest lies within
+    the look-ahead and the headlight only where a sag does: on a fitted alignment nothing else
+    can limit them; ``headlight=False`` checks the line of sight only. Stations must be evenly
+    spaced.
 
     Returns arrays per station: ``sight_fwd_m, sight_back_m`` (the governing distance),
     ``los_fwd_m, los_back_m, beam_fwd_m, beam_back_m`` (inf where not limiting),
@@ -181,12 +210,17 @@ def sight_both_ways(chainage_m: np.ndarray, profile, rules: SightRules, fine_ste
         los, beam, avail = np.empty(len(ch)), np.empty(len(ch)), np.empty(len(ch))
         los_k = np.empty(len(ch), dtype=np.int64)
         beam_k = np.empty(len(ch), dtype=np.int64)
+        want_los = _curves_ahead(ch, curves, "crest", rules.lookahead_m, sign)
+        want_beam = (_curves_ahead(ch, curves, "sag", rules.lookahead_m, sign) if headlight
+                     else np.zeros(len(ch), dtype=bool))
         for c0 in range(0, len(ch), chunk):
             ei = e[c0:c0 + chunk]
             idx = ei[:, None] + j[None, :]
             Z = np.where(idx < len(zz), zz[np.minimum(idx, len(zz) - 1)], np.nan)
             sl = slice(c0, c0 + chunk)
-            los[sl], beam[sl], los_k[sl], beam_k[sl], avail[sl] = _ahead(Z, zz[ei], sign * g[sl], h, rules)
+            los[sl], beam[sl], los_k[sl], beam_k[sl], avail[sl] = _ahead(
+                Z, zz[ei], sign * g[sl], h, rules, None if want_los is None else want_los[sl],
+                None if want_beam is None else want_beam[sl])
         sd, lim, at_k = _govern(los, beam, los_k, beam_k, avail, rules.lookahead_m)
         at_ch = np.where(at_k >= 0, ch + sign * (at_k + 1) * h, np.nan)
         nan_eye = np.isnan(z[eye])

@@ -69,27 +69,35 @@ def predict_v85(chainage_m: np.ndarray, grade_pct: np.ndarray, vcurves: pd.DataF
     ch = np.asarray(chainage_m, dtype=float)
     g = direction * np.asarray(grade_pct, dtype=float)
     v = np.full(len(ch), float(desired_kmh))
-    crests = vcurves[(vcurves["kind"] == "crest") & (vcurves["k"] <= LIMITED_SIGHT_K)] if len(vcurves) else vcurves
-    sags = vcurves[vcurves["kind"] == "sag"] if len(vcurves) else vcurves
+    if len(vcurves):
+        kind = vcurves["kind"].to_numpy()
+        k = vcurves["k"].to_numpy(dtype=float)
+        pvc, pvt = vcurves["pvc_m"].to_numpy(dtype=float), vcurves["pvt_m"].to_numpy(dtype=float)
+        crest = (kind == "crest") & (k <= LIMITED_SIGHT_K)
+        sag = kind == "sag"
+    else:
+        crest = sag = np.zeros(0, dtype=bool)
+        pvc = pvt = k = np.zeros(0)
     on_h = np.zeros(len(ch), dtype=bool)
-    for hc in hcurves.itertuples():
-        on = (ch >= hc.start_m) & (ch <= hc.end_m)
-        if not on.any():
-            continue
-        on_h |= on
-
-        def overlaps(t):
-            return len(t) and bool(((t["pvc_m"] <= hc.end_m) & (t["pvt_m"] >= hc.start_m)).any())
-
-        if overlaps(crests):
-            vh = v85_horizontal_with_crest(hc.radius_m)
-        elif overlaps(sags):
-            vh = v85_horizontal_with_sag(hc.radius_m)
-        else:
-            vh = v85_horizontal_on_grade(hc.radius_m, np.nanmean(g[on]) if np.isfinite(g[on]).any() else 0.0)
-        v[on] = np.minimum(v[on], vh)
-    for c in crests.itertuples():
-        on = (ch >= c.pvc_m) & (ch <= c.pvt_m) & ~on_h
-        if on.any() and c.k > 0:
-            v[on] = np.minimum(v[on], v85_crest_on_tangent(c.k))
+    if len(hcurves):
+        for s0, s1, R in zip(hcurves["start_m"].to_numpy(float), hcurves["end_m"].to_numpy(float),
+                             hcurves["radius_m"].to_numpy(float)):
+            a, b = np.searchsorted(ch, [s0, s1 + 1e-9])
+            if b <= a:
+                continue
+            on_h[a:b] = True
+            over = (pvc <= s1) & (pvt >= s0)
+            if (over & crest).any():
+                vh = v85_horizontal_with_crest(R)
+            elif (over & sag).any():
+                vh = v85_horizontal_with_sag(R)
+            else:
+                gm = g[a:b]
+                vh = v85_horizontal_on_grade(R, np.nanmean(gm) if np.isfinite(gm).any() else 0.0)
+            v[a:b] = np.minimum(v[a:b], vh)
+    for c0, c1, kk in zip(pvc[crest], pvt[crest], k[crest]):
+        a, b = np.searchsorted(ch, [c0, c1 + 1e-9])
+        seg = slice(a, b)
+        if b > a and kk > 0:
+            v[seg] = np.where(on_h[seg], v[seg], np.minimum(v[seg], v85_crest_on_tangent(kk)))
     return np.clip(v, 0.0, desired_kmh)

@@ -115,3 +115,36 @@ def test_located_points_recover_known_chainage():
     got_chain, got_offset = locate_points(line, pts[:, 0], pts[:, 1])
     np.testing.assert_allclose(got_chain, chain, atol=1e-6)
     np.testing.assert_allclose(got_offset, offset, atol=1e-6)
+
+
+def test_ground_points_grouped_by_id_like_pandas_groupby(tmp_path):
+    """Ground points split by road id must hold exactly the rows pandas' groupby gives for the
+    same ids read as text (reference: pandas.DataFrame.groupby); ids that differ only by
+    surrounding spaces are one road, rows without an id are dropped
+    (common practice, no source)."""
+    import pandas as pd
+
+    from pipeline.ingest import open_ground
+
+    from shapely.geometry import LineString
+
+    write_roads_gpkg(tmp_path / "r.gpkg", ["A1", "12"],
+                     [LineString([(0, 0), (500, 0)]), LineString([(0, 100), (500, 100)])], crs="EPSG:32633")
+    cfg = Config()
+    roads = read_roads(tmp_path / "r.gpkg", cfg)
+    rng = np.random.default_rng(7)
+    n = 400
+    ids = rng.choice(np.array(["A1", " A1", "A1 ", "12", "", None], dtype=object), n)
+    frame = pd.DataFrame({"road_id": ids, "chainage_m": rng.uniform(0, 500, n), "z": rng.normal(300, 5, n)})
+    frame.to_csv(tmp_path / "g.csv", index=False)
+    ground = open_ground(tmp_path / "g.csv", cfg, roads)
+
+    back = pd.read_csv(tmp_path / "g.csv", dtype={"road_id": str})
+    back["key"] = back["road_id"].str.strip()
+    back = back[back["key"].notna() & (back["key"] != "")]
+    expected = {k: sorted(g["z"].round(9)) for k, g in back.groupby("key")}
+    got = {rid: sorted(np.round(ground.points(rid)["z_m"], 9)) for rid in ground.groups}
+    assert set(got) == {"A1", "12"} == set(expected)
+    for rid in expected:
+        assert got[rid] == pytest.approx(expected[rid])
+    assert ground.rows == len(back)
