@@ -136,32 +136,40 @@ class WorkFolder:
         key_file.write_text(json.dumps({"key": key}))
 
     def chunk(self, k: int) -> Path:
-        return self.path / f"chunk_{k:05d}"
+        return chunk_folder(self.path, k)
 
     def done(self, k: int) -> bool:
         return (self.chunk(k) / "done.json").is_file()
 
     def write(self, k: int, result: dict) -> None:
-        """Write one chunk's tables; the folder is renamed into place only once complete."""
-        final = self.chunk(k)
-        tmp = self.path / f".tmp_{k:05d}_{os.getpid()}"
-        if tmp.exists():
-            shutil.rmtree(tmp)
-        tmp.mkdir()
-        for name in TABLES:
-            frame = _typed(name, result[name])
-            frame.to_parquet(tmp / f"{name}.parquet", index=False)
-        meta = {key: result[key] for key in ("seconds", "points_used", "points_dropped", "sampler_notes")}
-        (tmp / "done.json").write_text(json.dumps(meta))
-        if final.exists():
-            shutil.rmtree(final)
-        tmp.rename(final)
+        write_chunk(self.path, k, result)
 
     def meta(self, k: int) -> dict:
         return json.loads((self.chunk(k) / "done.json").read_text())
 
     def glob(self, name: str) -> str:
         return str(self.path / "chunk_*" / f"{name}.parquet")
+
+
+def chunk_folder(work_path: Path, k: int) -> Path:
+    return Path(work_path) / f"chunk_{k:05d}"
+
+
+def write_chunk(work_path: Path, k: int, result: dict) -> None:
+    """Write one chunk's tables into the work folder at ``work_path`` (from this process or a
+    worker); the chunk's folder is renamed into place only once complete."""
+    final = chunk_folder(work_path, k)
+    tmp = Path(work_path) / f".tmp_{k:05d}_{os.getpid()}"
+    if tmp.exists():
+        shutil.rmtree(tmp)
+    tmp.mkdir()
+    for name in TABLES:
+        _typed(name, result[name]).to_parquet(tmp / f"{name}.parquet", index=False)
+    meta = {key: result[key] for key in ("seconds", "points_used", "points_dropped", "sampler_notes")}
+    (tmp / "done.json").write_text(json.dumps(meta))
+    if final.exists():
+        shutil.rmtree(final)
+    tmp.rename(final)
 
 
 def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
@@ -217,10 +225,7 @@ def empty_profiles() -> pd.DataFrame:
 
 def _run_chunk_to_folder(job: Job, rows: pd.DataFrame, net_junctions: dict, folder: str, k: int) -> dict:
     """Worker side of the local engine: run a chunk and write it (the worker shares the disk)."""
-    result = process_chunk(job, rows, net_junctions)
-    wf = WorkFolder.__new__(WorkFolder)
-    wf.path = Path(folder)
-    wf.write(k, result)
+    write_chunk(Path(folder), k, process_chunk(job, rows, net_junctions))
     return {"k": k, "n": len(rows)}
 
 
@@ -448,18 +453,18 @@ def _run_chunks(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], ne
     if cfg["run.engine"] == "dask":
         _run_dask(job, todo, rows_of, work, cfg, tick)
         return
-    if pool is None and len(todo) > 1:
+    if len(todo) > 1:
+        if pool is not None:
+            _submit_all(pool, job, todo, rows_of, work, tick)
+            return
         with worker_pool(cfg) as own:
             if own is not None:
                 _submit_all(own, job, todo, rows_of, work, tick)
                 return
-    if pool is None or len(todo) <= 1:
-        for k in todo:
-            rows, nj = rows_of(k)
-            work.write(k, process_chunk(job, rows, nj))
-            tick(len(rows))
-        return
-    _submit_all(pool, job, todo, rows_of, work, tick)
+    for k in todo:  # one chunk, or one worker: in this process
+        rows, nj = rows_of(k)
+        work.write(k, process_chunk(job, rows, nj))
+        tick(len(rows))
 
 
 def _submit_all(pool, job: Job, todo: list[int], rows_of, work: WorkFolder, tick) -> None:

@@ -74,15 +74,8 @@ def write_profiles_from_work(path: Path, result, units) -> None:
     with duckdb.connect() as con:
         cols = [r[0] for r in con.sql(f"DESCRIBE SELECT * FROM read_parquet('{glob}', union_by_name = true)")
                 .fetchall()]
-        exprs = []
-        for c in cols:
-            new = units.column(c)
-            if units.us and c.endswith("_m"):
-                exprs.append(f'"{c}" / {units.m_per_length!r} AS "{new}"')
-            elif units.us and c.endswith("_kmh"):
-                exprs.append(f'"{c}" / {units.kmh_per_speed!r} AS "{new}"')
-            else:
-                exprs.append(f'"{c}"')
+        exprs = [f'"{c}" / {units.divisor(c)!r} AS "{units.column(c)}"' if units.divisor(c) != 1.0 else f'"{c}"'
+                 for c in cols]
         con.register("road_order", pd.DataFrame({"road_id": result.roads.table["road_id"],
                                                  "_order": np.arange(len(result.roads.table))}))
         con.sql(f"COPY (SELECT {', '.join(exprs)} FROM read_parquet('{glob}', union_by_name = true) p "

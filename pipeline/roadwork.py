@@ -33,6 +33,7 @@ class RoadOutcome:
     polyline: object = None
     hcurves: pd.DataFrame | None = None
     hazards: pd.DataFrame | None = None
+    road: object = None  # the fitted alignment (alignment.RoadProfile), once the sight stage built it
     seconds: dict[str, float] = field(default_factory=dict)
 
     def skip(self, reason: str) -> "RoadOutcome":
@@ -88,8 +89,8 @@ class GroundSampler:
 
     def sample(self, line, key: str, road_id: str, stations: np.ndarray, polyline=None
                ) -> tuple[np.ndarray, np.ndarray, list]:
-        # (road_id is the id as in the source files: ground points refer to it)
-        """``(z_m, flag, notes)`` at ``stations`` (chainage m)."""
+        """``(z_m, flag, notes)`` at ``stations`` (chainage m); ``road_id`` is the id as in the
+        source files, which ground points refer to."""
         step, max_gap = self.cfg["profile.step_m"], self.cfg["profile.max_gap_m"]
         notes: list = []
         if isinstance(self.ground, DemGround):
@@ -226,7 +227,7 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
             prof[col] = np.nan
         out.keypoints = None
         return
-    road = RoadProfile(stretches)
+    road = out.road = RoadProfile(stretches)
     res = sight_both_ways(ch, road.z, rules, fine, curves=curves, grade=road.grade)
     for name in ("fwd", "back"):
         prof[f"sight_{name}_m"] = res[f"sight_{name}_m"]
@@ -289,7 +290,7 @@ def road_speeds(out: RoadOutcome, row: pd.Series, cfg: Config) -> None:
         prof["speed_back_kmh"] = prof["v85_back_kmh"]
     else:
         prof["speed_fwd_kmh"] = prof["speed_back_kmh"] = float(row["speed_kmh"])
-    kp = getattr(out, "keypoints", None)
+    kp = out.keypoints
     if kp is not None and len(kp):
         fwd = kp["direction"] == "increasing"
         kp["speed_kmh"] = np.where(fwd, np.interp(kp["chainage_m"], ch, prof["speed_fwd_kmh"]),
@@ -305,7 +306,7 @@ def road_hazards(out: RoadOutcome, stretches: list, junctions: list, cset, cfg: 
     rows = []
     crests = out.curves[out.curves["kind"] == "crest"] if out.curves is not None and len(out.curves) else []
     if len(crests) and stretches:
-        road = RoadProfile(stretches)
+        road = out.road if out.road is not None else RoadProfile(stretches)
         prof = out.profile
         ch = prof["chainage_m"].to_numpy()
         rules = cset.sight_rules()

@@ -78,17 +78,26 @@ class OutputUnits:
             return name.replace("km", "mi")
         return name
 
+    def divisor(self, name: str) -> float:
+        """What a value of the internal (metric) column ``name`` is divided by in these units
+        (1.0 where it is unchanged)."""
+        if not self.us:
+            return 1.0
+        if name.endswith("_m") or name in ("k", "k_required"):
+            return self.m_per_length
+        if name.endswith("_kmh"):
+            return self.kmh_per_speed
+        if self.column(name) != name:  # km columns
+            return self.km_per_distance
+        return 1.0
+
     def table(self, frame):
         """A copy of ``frame`` with its columns renamed and converted to these units."""
         if not self.us:
             return frame.copy()
         out = frame.copy()
         for col in frame.columns:
-            new = self.column(col)
-            if col.endswith("_m") or col in ("k", "k_required"):
-                out[col] = frame[col] / self.m_per_length if frame[col].dtype.kind in "fiu" else frame[col]
-            elif col.endswith("_kmh"):
-                out[col] = frame[col] / self.kmh_per_speed if frame[col].dtype.kind in "fiu" else frame[col]
-            elif new != col:  # km columns
-                out[col] = frame[col] / self.km_per_distance if frame[col].dtype.kind in "fiu" else frame[col]
+            d = self.divisor(col)
+            if d != 1.0 and frame[col].dtype.kind in "fiu":
+                out[col] = frame[col] / d
         return out.rename(columns={c: self.column(c) for c in frame.columns})
