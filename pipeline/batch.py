@@ -34,7 +34,7 @@ from . import __version__
 from .config import Config
 from .export import CAUTION_TEXT as CAUTION
 from .ingest import PointGround, Roads, file_sha256, open_ground, read_roads
-from .roadwork import HAZARD_COLUMNS, PREDICTED, Job, process_chunk
+from .roadwork import HAZARD_COLUMNS, HCURVE_CHECK_COLUMNS, PREDICTED, Job, process_chunk
 
 
 # --------------------------------------------------------------------- progress
@@ -196,8 +196,7 @@ def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
     if name == "hcurves":
         from .plan import HCURVE_COLUMNS
 
-        cols = ["road_id"] + HCURVE_COLUMNS + ["speed_kmh", "r_min_m", "below_min_radius", "ssd_required_m",
-                                               "hso_m", "hso_valid", "v85_kmh"]
+        cols = ["road_id"] + HCURVE_COLUMNS + HCURVE_CHECK_COLUMNS
         kinds = {"road_id": str, "direction": str, "hcurve_no": "int64", "below_min_radius": bool,
                  "hso_valid": bool}
         return pd.DataFrame({c: pd.Series(dtype=kinds.get(c, float)) for c in cols})

@@ -11,7 +11,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import duckdb
-import numpy as np
 import pandas as pd
 
 from .config import Config

@@ -96,7 +96,6 @@ DEFICIENCY_EXTRA = ["severity", "hidden_hazard", "hazard_chainage_m", "hazard_de
                     "hidden_to_m", "treatment_hint", "speed_gap_kmh", "stretch_length_m", "road_name", "road_class",
                     "speed_basis", "a_pct", "curve_length_m", "pvi_m", "confidence", "limit_kind", "f_shortfall",
                     "f_speed", "f_exposure"]
-HCURVE_EXTRA = ["speed_kmh", "r_min_m", "below_min_radius", "ssd_required_m", "hso_m", "hso_valid", "v85_kmh"]
 
 # what each column means, for the spreadsheet's header notes and the method sheet
 COLUMN_NOTES = {

@@ -39,7 +39,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-import shapely
 
 DEFAULTS = {"step_m": 5.0, "smooth_m": 50.0, "max_radius_m": 3000.0, "min_length_m": 20.0,
             "min_deflection_deg": 3.0}

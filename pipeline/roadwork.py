@@ -354,6 +354,11 @@ def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source,
     return out
 
 
+# the columns road_hcurve_checks adds to each horizontal curve
+HCURVE_CHECK_COLUMNS = ["speed_kmh", "r_min_m", "below_min_radius", "ssd_required_m", "hso_m", "hso_valid",
+                        "v85_kmh"]
+
+
 def road_hcurve_checks(out: RoadOutcome, cset, cfg: Config) -> None:
     """Each horizontal curve's speed (the highest judged on it), predicted operating speed
     (lowest on it), minimum radius for that speed, required SSD and the sight line offset it

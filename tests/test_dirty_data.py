@@ -8,9 +8,8 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-import shapely
 
-from conftest import write_dem, write_roads_gpkg
+from conftest import write_dem
 from pipeline.artefacts import detect, implausible_grades
 from pipeline.batch import run_network
 from pipeline.config import load_config
