@@ -56,6 +56,8 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.optimize import least_squares
 
+from .corridor import deconvolved_length
+
 # ---------------------------------------------------------------- settings
 DEFAULTS = {
     "min_tangent_m": 20.0,        # shortest straight piece the segmentation may create
@@ -973,13 +975,16 @@ class RoadProfile:
 
 
 
-def fit_profile(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, opts: dict | None = None):
+def fit_profile(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, opts: dict | None = None,
+                filter_m: np.ndarray | None = None):
     """Fit a road's profile (NaN = no data). Returns ``(alignments, curves, fitted_z, grade)``.
 
     The profile is split where data are missing over more than ``split_gap_m``;
     each stretch gets its own alignment. ``curves`` is a DataFrame, one row per
     curve; ``fitted_z`` and ``grade`` (fraction) are per station (NaN outside
-    fitted stretches).
+    fitted stretches). ``filter_m`` (per station, m) is the equivalent length of a running
+    mean the profile went through (:func:`pipeline.corridor.cell_crossing_filter`); each
+    fitted curve's length is corrected for it (:func:`pipeline.corridor.deconvolved_length`).
     """
     opts = DEFAULTS | (opts or {})
     ch = np.asarray(chainage_m, dtype=float)
@@ -1006,6 +1011,9 @@ def fit_profile(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, opts: di
                            L=np.zeros(2), sigma=sigma, n=len(piece))
         else:
             al = fit_stretch(ch[piece], z[piece], step_m, opts, sigma=sigma)
+            if filter_m is not None and len(al.x) > 2:
+                box = np.interp(al.x[1:-1], ch, filter_m)
+                al.L[1:-1] = deconvolved_length(al.L[1:-1], box)
         stretches.append(al)
         span = (ch >= al.x[0]) & (ch <= al.x[-1])
         fitted[span] = al.z(ch[span])
@@ -1043,7 +1051,11 @@ def _curve_table(stretches, ch, z, fitted, opts) -> pd.DataFrame:
             resid = (z - fitted)[zone & valid]
             rmse = float(np.sqrt(np.mean(resid**2))) if len(resid) else np.nan
             n_on = int(((ch >= pvc) & (ch <= pvt) & valid).sum())
-            if n_on < 4:
+            res_m = float(opts.get("resolution_m", 0.0))
+            if L < max(res_m, step):
+                flags.append(f"angle point or very short curve: L under the {max(res_m, step):.0f} m "
+                             f"the data resolve")
+            elif n_on < 4:
                 flags.append("few samples on the curve")
             judged = True
             if (zone & ~valid).any():

@@ -183,7 +183,10 @@ def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
     if name == "curves":
         e = empty_curves()
         e.insert(0, "road_id", pd.Series(dtype=str))
-        e["sight_formula_m"] = pd.Series(dtype=float)
+        from .roadwork import UNCERTAINTY_COLUMNS
+
+        for col in UNCERTAINTY_COLUMNS + ["sight_sd_m", "sight_formula_m"]:
+            e[col] = pd.Series(dtype=float)
         return e
     if name == "keypoints":
         return pd.DataFrame({"road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float),
@@ -206,7 +209,8 @@ def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
                              "detail": pd.Series(dtype=str)})
     if name == "status":
         return pd.DataFrame({"road_id": pd.Series(dtype=str), "status": pd.Series(dtype=str),
-                             "reason": pd.Series(dtype=str)})
+                             "reason": pd.Series(dtype=str), "ground_spacing_m": pd.Series(dtype=float),
+                             "resolution_m": pd.Series(dtype=float)})
     raise KeyError(name)
 
 
@@ -214,6 +218,7 @@ def empty_profiles() -> pd.DataFrame:
     return pd.DataFrame({
         "road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float), "x": pd.Series(dtype=float),
         "y": pd.Series(dtype=float), "ground_z_m": pd.Series(dtype=float), "ground_flag": pd.Series(dtype=str),
+        "ground_offset_m": pd.Series(dtype=float), "filter_m": pd.Series(dtype=float),
         "fitted_z_m": pd.Series(dtype=float), "grade_pct": pd.Series(dtype=float),
         "sight_fwd_m": pd.Series(dtype=float), "sight_back_m": pd.Series(dtype=float),
         "limit_fwd": pd.Series(dtype=str), "limit_back": pd.Series(dtype=str),
@@ -305,6 +310,8 @@ class NetworkResult:
             "length_m": t["length_m"].round(2),
             "status": st["status"].reindex(t["road_id"]).to_numpy(),
             "reason": st["reason"].reindex(t["road_id"]).to_numpy(),
+            "ground_spacing_m": st["ground_spacing_m"].reindex(t["road_id"]).to_numpy(dtype=float),
+            "resolution_m": st["resolution_m"].reindex(t["road_id"]).to_numpy(dtype=float),
         })
 
     def data_notes(self) -> pd.DataFrame:
@@ -561,6 +568,7 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
     interruption. Returns the run summary (also in ``run.json``).
     """
     from .export import staging_folder, write_outputs
+    from .quality import data_quality
 
     progress = progress or Progress()
     started = datetime.now(timezone.utc)
@@ -588,6 +596,8 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
             "hazard_stretches": int((result.evaluation.inventory["hidden_hazard"] != "none").sum()),
             "network_by_class": network_summary(result).to_dict(orient="records"),
             "audit_summary": result.evaluation.summary.to_dict(orient="records"),
+            "data_quality": data_quality(result.ground_info["kind"], result.road_table(),
+                                         result.evaluation.curves),
             "notes": result.notes,
             "stage_seconds": result.timings,
             "chunks": result.chunks,

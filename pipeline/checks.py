@@ -42,7 +42,7 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
     sampler.cfg = sub
     for _, row in t[ok].iterrows():
         st = station_chainages(row["length_m"], sample_step_m)
-        z, _, _ = sampler.sample(row["geometry"], row["work_key"], row["source_id"], st)
+        z, _, _, _ = sampler.sample(row["geometry"], row["work_key"], row["source_id"], st)
         have = np.isfinite(z)
         covered += have.sum() * sample_step_m
         total += len(st) * sample_step_m

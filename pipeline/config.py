@@ -42,6 +42,11 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
     "profile": {
         "step_m": (5.0, "distance between profile stations along the road (m)"),
         "max_gap_m": (20.0, "ground gaps longer than this are left missing, shorter ones are interpolated and marked (m)"),
+        "corridor_half_width_m": (12.0, "on a fine DEM the carriageway is searched for this far either side of the "
+                                        "given centreline, and the profile read on it; 0 = read the centreline as given (m)"),
+        "corridor_max_cell_m": (3.0, "DEMs with cells up to this show the road prism and are searched for the "
+                                     "carriageway; coarser ones are filtered against the cell-crossing ripple (m)"),
+        "carriageway_width_m": (7.0, "width of the carriageway with its shoulders, for the carriageway search (m)"),
     },
     "alignment": {
         "min_tangent_m": (20.0, "shortest straight piece the segmentation may create; a PVI needs this much data each side (m)"),
@@ -110,6 +115,16 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "fine_step_m": (2.0, "spacing of the road samples a sight line is checked against (m)"),
         "ground_diagnostic": (True, "also measure the line of sight on the raw ground profile, at the station "
                                     "step (diagnostic columns)"),
+    },
+    "confidence": {
+        "p_verdict": (0.9, "a curve is judged deficient (or adequate) only where the probability that its sight "
+                           "distance is short is at least (or at most 1 minus) this; otherwise undetermined"),
+        "p_high": (0.99, "a verdict is of high confidence only where that probability is at least this "
+                         "(or at most 1 minus it), the fit is clean and the grade change clear"),
+        "min_significance": (3.0, "a grade change smaller than this many standard deviations is never judged deficient"),
+        "high_significance": (5.0, "a grade change must be this many standard deviations for high confidence"),
+        "fine_resolution_m": (4.0, "ground data resolving features this short (m) count as survey-grade in the "
+                                   "advice given with undetermined verdicts"),
     },
     "inventory": {
         "severity_bands_kmh": ([10.0, 20.0], "speed gaps (km/h) separating minor, moderate and severe deficiencies"),

@@ -37,6 +37,11 @@ def params_table(cfg: Config) -> pd.DataFrame:
         "hazard_weight": float(cfg["inventory.hazard_weight"]),
         "recon_gap_kmh": float(cfg["inventory.reconstruction_gap_kmh"]),
         "recon_aadt": float(cfg["inventory.reconstruction_aadt"]),
+        "p_verdict": float(cfg["confidence.p_verdict"]),
+        "p_high": float(cfg["confidence.p_high"]),
+        "min_significance": float(cfg["confidence.min_significance"]),
+        "high_significance": float(cfg["confidence.high_significance"]),
+        "fine_resolution_m": float(cfg["confidence.fine_resolution_m"]),
     }])
 
 

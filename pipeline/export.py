@@ -87,15 +87,16 @@ CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi
                   "a_pct", "length_m", "k", "fit_rmse_m", "sight_available_m", "ssd_required_m", "speed_kmh",
                   "deficient"]
 CURVE_EXTRA = ["judged", "supported_speed_kmh", "k_required", "k_below_table", "sight_increasing_m",
-               "sight_decreasing_m", "sight_formula_m", "sight_limited_by", "turn_m", "turn_elev_m", "confidence",
-               "flags"]
+               "sight_decreasing_m", "sight_formula_m", "sight_limited_by", "turn_m", "turn_elev_m", "verdict",
+               "p_deficient", "confidence", "to_settle", "sight_sd_m", "k_sd", "a_sd_pct", "length_sd_m",
+               "significance", "noise_sd_m", "noise_rho", "resolution_m", "fit_confidence", "flags"]
 DEFICIENCY_CONTRACT = ["rank", "road_id", "curve_no", "kind", "direction", "from_m", "to_m", "speed_kmh",
                        "supported_speed_kmh", "ssd_required_m", "sight_available_m", "shortfall_m", "k",
                        "k_required", "aadt", "priority_score"]
 DEFICIENCY_EXTRA = ["severity", "hidden_hazard", "hazard_chainage_m", "hazard_detail", "hidden_from_m",
                     "hidden_to_m", "treatment_hint", "speed_gap_kmh", "stretch_length_m", "road_name", "road_class",
-                    "speed_basis", "a_pct", "curve_length_m", "pvi_m", "confidence", "limit_kind", "f_shortfall",
-                    "f_speed", "f_exposure"]
+                    "speed_basis", "a_pct", "curve_length_m", "pvi_m", "verdict", "p_deficient", "confidence",
+                    "to_settle", "limit_kind", "f_shortfall", "f_speed", "f_exposure"]
 
 # what each column means, for the spreadsheet's header notes and the method sheet
 COLUMN_NOTES = {
@@ -115,7 +116,6 @@ COLUMN_NOTES = {
     "sight_available_m": "shortest sight distance this curve allows a driver, either direction (m)",
     "ssd_required_m": "stopping sight distance required at the road's speed by the criteria set (m)",
     "speed_kmh": "speed the road is judged at (km/h)",
-    "deficient": "true where the available sight distance is below the required SSD",
     "judged": "false where the curve's zone is mostly without usable ground data: no verdict given",
     "supported_speed_kmh": "highest speed whose SSD the available sight distance meets (km/h)",
     "k_required": "K the criteria set tabulates for the road's speed (m per %)",
@@ -126,8 +126,25 @@ COLUMN_NOTES = {
     "sight_limited_by": "whether this curve limits any driver's sight within the look-ahead",
     "turn_m": "chainage of the high (crest) or low (sag) point where it lies on the curve (m)",
     "turn_elev_m": "elevation of the high or low point (m)",
-    "confidence": "how far the recovered curve can be trusted: high, medium or low",
-    "flags": "why confidence is not high",
+    "deficient": "true only where the verdict is 'deficient'",
+    "verdict": "deficient, adequate, or undetermined at this data quality (the probability is between the "
+               "decision thresholds, the grade change is not clear in the data, or the curve lacks ground data)",
+    "p_deficient": "probability that the sight distance over the curve is below the required SSD, from its "
+                   "standard deviation (0-1)",
+    "confidence": "high: the verdict's probability is beyond the high threshold, the fit clean and the grade "
+                  "change clear; medium: decided but less sure; low: undetermined, or the fit is poor",
+    "to_settle": "what would settle an undetermined verdict",
+    "sight_sd_m": "standard deviation of the sight distance over the curve, from the fit's covariance (m)",
+    "k_sd": "standard deviation of K (m per %)",
+    "a_sd_pct": "standard deviation of A (%)",
+    "length_sd_m": "standard deviation of L, including what the data cannot resolve (m)",
+    "significance": "A divided by its standard deviation: how clearly the data show the grade change",
+    "noise_sd_m": "spread of the ground profile about the fitted curve (robust, m)",
+    "noise_rho": "correlation of that misfit from one station to the next (0-0.95)",
+    "resolution_m": "shortest feature the ground data resolve along the road (m)",
+    "ground_spacing_m": "the ground data's own spacing on the road: DEM cell size or median ground-point spacing (m)",
+    "fit_confidence": "how well the curve fits the ground data alone: high, medium or low (see flags)",
+    "flags": "why the fit's confidence is not high",
     "rank": "1 = first to fix",
     "direction": "direction of travel: increasing or decreasing chainage",
     "from_m": "start of the deficient stretch: driver positions lacking SSD (m)",
@@ -215,6 +232,26 @@ def deficiencies_table(inventory: pd.DataFrame) -> pd.DataFrame:
     out = _round(inventory[cols])
     out["curve_no"] = out["curve_no"].astype("Int64")
     return out
+
+
+def data_quality_lines(dq: dict | None, units) -> list[tuple[str, str]]:
+    """The data-quality statement (:mod:`pipeline.quality`) as workbook summary lines."""
+    if not dq:
+        return []
+    L, E = units.length, units.length_label
+    kind = "DEM cell" if dq["ground_kind"] == "dem" else "ground-point spacing"
+    spacing = "unknown" if dq["spacing_m"] is None else f"{L(dq['spacing_m']):.1f} {E}"
+    res = "unknown" if dq["resolution_m"] is None else f"{L(dq['resolution_m']):.0f} {E}"
+    lines = [
+        ("Ground data", f"{kind} {spacing}; shortest feature resolved {res}"),
+        ("Estimated ground error", "no curves" if dq["noise_sd_m"] is None else
+         f"{L(dq['noise_sd_m']):.2f} {E} about the fit (station-to-station correlation {dq['noise_rho']:.2f})"),
+        ("Judged with high confidence", "no curves" if dq["curves_high_pct"] is None else
+         f"{dq['curves_high_pct']:.0f} % of curves; {dq['km_high_pct'] or 0:.0f} % of the road length has "
+         f"every curve judged with high confidence"),
+    ]
+    lines += [("What this data cannot judge", t) for t in dq["cannot_judge"]]
+    return lines
 
 
 def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[tuple[str, str]],
@@ -405,8 +442,12 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> None:
         ("Criteria set", f"{result.criteria.params['name']} ({result.criteria.params['title']})"),
         ("Units", f"lengths {units.length_label}, speeds {units.speed_label}, K in {units.length_label} per %"),
         ("Roads", f"{r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped (see the Roads sheet)"),
-        ("Curves", f"{len(curves)} found, {int(curves['deficient'].sum())} deficient"),
-        ("Deficient stretches", f"{len(defs)} (ranked in the Deficiencies sheet; rank 1 first to fix)"),
+        ("Curves", f"{len(curves)} found, {int(curves['deficient'].sum())} deficient, "
+                   f"{int((curves['verdict'] == 'undetermined').sum())} undetermined at this data quality"),
+        ("Deficient stretches", f"{int((defs['verdict'] == 'deficient').sum())} (ranked in the Deficiencies sheet; "
+                                f"rank 1 first to fix), then {int((defs['verdict'] == 'undetermined').sum())} "
+                                f"stretch(es) of undetermined curves"),
+    ] + data_quality_lines(summary.get("data_quality"), units) + [
         ("Run", f"sightaudit {summary['version']}, {summary['started_utc']}"),
     ]
     method = method_lines(result, cfg)

@@ -496,6 +496,18 @@ def _open_dem(path: Path, cfg: Config, roads: Roads, factor: float) -> DemGround
         raise InputError(f"{path}: cannot be read as a raster ({_short(exc)}); check the format") from None
 
 
+def dem_cell_m(dem: DemGround, affine, y_mid: float) -> float:
+    """Size (m) of a DEM cell: the geometric mean of the affine's pixel width and height, in
+    the CRS's linear unit converted to metres, or for a geographic CRS in degrees at latitude
+    ``y_mid`` (a degree of latitude taken as 111,320 m: the WGS 84 meridian, to 0.3 %)."""
+    w, h = abs(affine.a), abs(affine.e)
+    if dem.crs.is_geographic:
+        lat = np.radians(np.clip(y_mid, -89.0, 89.0))
+        return float(np.sqrt(w * np.cos(lat) * h) * 111_320.0)
+    factor = dem.crs.axis_info[0].unit_conversion_factor if dem.crs.axis_info else 1.0
+    return float(np.sqrt(w * h) * factor)
+
+
 def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 2):
     """The DEM cells around points ``x, y`` (DEM CRS): ``(array_m, affine)``.
 

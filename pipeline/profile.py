@@ -147,6 +147,15 @@ def bilinear(array: np.ndarray, affine, x: np.ndarray, y: np.ndarray) -> np.ndar
     return z
 
 
+def point_spacing_m(chain_m: np.ndarray) -> float | None:
+    """Typical spacing (m) of ground points along a road: the median gap between consecutive
+    distinct chainages (None for fewer than two points)."""
+    c = np.unique(np.asarray(chain_m, dtype=float)[np.isfinite(chain_m)])
+    if len(c) < 2:
+        return None
+    return float(np.median(np.diff(c)))
+
+
 def locate_points(line, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Chainage (m) of each point's nearest point on ``line`` and its signed offset (m, + = left)."""
     return Polyline(line).locate(x, y)

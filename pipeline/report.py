@@ -302,8 +302,10 @@ def report_pages(result, cfg, units) -> list[dict]:
     rules = result.criteria.sight_rules()
     hcurves_all = result.hcurves
     order = inv.dropna(subset=["curve_no"]).groupby(["road_id", "curve_no"], sort=False)["rank"].min()
-    order = order.sort_values().head(int(cfg["output.report_curves"]))
     cidx = curves.set_index(["road_id", "curve_no"])
+    # a stretch whose sight no fitted curve limits (curve_no 0) has no curve page
+    order = order[[key in cidx.index for key in order.index]]
+    order = order.sort_values().head(int(cfg["output.report_curves"]))
     profiles = result.road_profiles({rid for rid, _ in order.index})
     pages = []
     for (rid, cno), rank in order.items():
@@ -323,6 +325,28 @@ def report_pages(result, cfg, units) -> list[dict]:
         pages.append({"road_id": rid, "curve_no": cno, "curve": c, "rows": rows, "title": title,
                       "spec": dict(prof=rp, curve=c, rows=rows, hcurves=hc, rules=rules, units=units, title=title)})
     return pages
+
+
+def data_quality_html(dq: dict | None, units) -> str:
+    """The report's statement of what the ground data can support (:mod:`pipeline.quality`)."""
+    if not dq:
+        return ""
+    L, E = units.length, units.length_label
+    kind = "DEM cell" if dq["ground_kind"] == "dem" else "ground-point spacing"
+    facts = [
+        (kind, "unknown" if dq["spacing_m"] is None else f"{L(dq['spacing_m']):.1f} {E}"),
+        ("shortest feature resolved", "unknown" if dq["resolution_m"] is None else f"{L(dq['resolution_m']):.0f} {E}"),
+        ("estimated ground error about the fit", "no curves" if dq["noise_sd_m"] is None else
+         f"{L(dq['noise_sd_m']):.2f} {E} (correlation from station to station {dq['noise_rho']:.2f})"),
+        ("curves judged with high confidence", "no curves" if dq["curves_high_pct"] is None else
+         f"{dq['curves_high_pct']:.0f} % of {dq['curves']}; undetermined {dq['curves_undetermined_pct']:.0f} %"),
+        ("road length all of whose curves are judged with high confidence",
+         "none evaluated" if dq["km_high_pct"] is None else f"{dq['km_high_pct']:.0f} %"),
+    ]
+    rows = "".join(f"<tr><td>{_e(k)}</td><td>{_e(v)}</td></tr>" for k, v in facts)
+    words = "".join(f"<li>{_e(t)}</li>" for t in dq["cannot_judge"])
+    return (f"<h3 id='data-quality'>What this ground data can support</h3><table class='facts'>{rows}</table>"
+            f"<ul>{words}</ul>")
 
 
 def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]],
@@ -360,7 +384,8 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
              ("roads skipped", f"{r['skipped']}"),
              ("vertical curves", f"{len(curves)}"),
              ("deficient curves", f"{deficient_curves}"),
-             ("deficient stretches", f"{len(inv)}"),
+             ("undetermined curves", f"{int((curves['verdict'] == 'undetermined').sum()) if len(curves) else 0}"),
+             ("deficient stretches", f"{int((inv['verdict'] == 'deficient').sum()) if len(inv) else 0}"),
              ("severe stretches", f"{int((inv['severity'] == 'severe').sum()) if len(inv) else 0}"),
              ("hiding a hazard", f"{int((inv['hidden_hazard'] != 'none').sum()) if len(inv) else 0}")]
     parts += [f"<div class='card'><b class='figure' data-name='{_e(k)}'>{_e(v)}</b>{_e(k)}</div>" for k, v in cards]
@@ -370,6 +395,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     by_class = units.table(ev.summary)
     nd = {c: (2 if ("km" in c or "mi" in c) else 0) for c in by_class.columns if c != "road_class"}
     parts.append("<h3>By road class</h3>" + _table(by_class, nd))
+    parts.append(data_quality_html(summary.get("data_quality"), units))
 
     # --- map
     parts.append("<h2 id='map'>Network overview</h2>")
@@ -379,7 +405,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
 
     # --- inventory
     parts.append("<h2 id='inventory'>Ranked inventory (top 50)</h2>")
-    parts.append(f"<p>{len(inv)} deficient stretches; the full list with every column is in "
+    n_und = int((inv["verdict"] == "undetermined").sum()) if len(inv) else 0
+    parts.append(f"<p>{len(inv) - n_und} deficient stretches, then {n_und} stretch(es) of curves the ground data "
+                 f"cannot decide (verdict undetermined); the full list with every column is in "
                  f"<a href='deficiencies.xlsx'>deficiencies.xlsx</a> (and deficiencies.csv). Rank 1 is first to "
                  f"fix. Stretches whose crest hides a hazard come first.</p>")
     if len(inv):
@@ -392,8 +420,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
             f"SSD needed ({E})": L(top["ssd_required_m"]), f"sight ({E})": L(top["sight_available_m"]),
             f"short by ({E})": L(top["shortfall_m"]), "severity": top["severity"],
             "hidden hazard": top["hidden_hazard"], "score": top["priority_score"],
+            "verdict": top["verdict"], "P(deficient)": top["p_deficient"], "confidence": top["confidence"],
         })
-        nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "curve": 0}
+        nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "curve": 0, "P(deficient)": 2}
         parts.append(_table(shown, nd))
 
     # --- one page per deficient curve
@@ -414,11 +443,20 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
                                        f"({worst['direction']} chainage)"),
             ("speed the curve supports", f"{V(worst['supported_speed_kmh']):.0f} {S} "
                                          f"({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
-            ("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {worst['hazard_detail']}"
-                                         if isinstance(worst.get("hazard_detail"), str) else "")),
+            ("verdict", f"{_e(c['verdict'])}: probability of a shortfall {c['p_deficient']:.2f}, confidence "
+                        f"{_e(c['confidence'])}" + (f"; to settle it: {_e(c['to_settle'])}"
+                                                     if isinstance(c.get("to_settle"), str) else "")),
+            ("uncertainty (1 sd)", f"K {L(c['k']):.1f} &plusmn; {L(c['k_sd']):.1f} {E}/%, sight distance "
+                                   f"&plusmn; {L(c['sight_sd_m']):.0f} {E}, A &plusmn; {c['a_sd_pct']:.2f} %, "
+                                   f"L &plusmn; {L(c['length_sd_m']):.0f} {E}"),
+        ]
+        if c["kind"] == "crest":
+            facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {worst['hazard_detail']}"
+                          if isinstance(worst.get("hazard_detail"), str) else "")))
+        facts += [
             ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
                                      zip(rows["direction"], rows["from_m"], rows["to_m"]))),
-            ("fit", f"RMSE {L(c['fit_rmse_m']):.3f} {E}, confidence {c['confidence']}"
+            ("fit", f"RMSE {L(c['fit_rmse_m']):.3f} {E}, confidence of the fit {c['fit_confidence']}"
                     + (f" ({_e(c['flags'])})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
             ("first thought on treatment", _e(worst["treatment_hint"])),
         ]

@@ -16,7 +16,10 @@ import pandas as pd
 
 from .config import Config
 from .ingest import DemGround, PointGround, is_ballpark, read_dem_window, transformer
-from .profile import FILLED, FLAG_NAMES, MASKED, MISSING, Polyline, bilinear, regularise, run_lengths, station_chainages
+from .corridor import carriageway_offsets, cell_crossing_filter, resolution_length_m
+from .ingest import dem_cell_m
+from .profile import (FILLED, FLAG_NAMES, MASKED, MISSING, Polyline, bilinear, point_spacing_m, regularise,
+                      run_lengths, station_chainages)
 
 PREDICTED = "predicted (FHWA-RD-99-171)"
 
@@ -34,6 +37,7 @@ class RoadOutcome:
     hcurves: pd.DataFrame | None = None
     hazards: pd.DataFrame | None = None
     road: object = None  # the fitted alignment (alignment.RoadProfile), once the sight stage built it
+    data: dict = field(default_factory=dict)  # what the ground data resolve (profile stage)
     seconds: dict[str, float] = field(default_factory=dict)
 
     def skip(self, reason: str) -> "RoadOutcome":
@@ -88,25 +92,24 @@ class GroundSampler:
         return [(lo, label) for lo, hi, _, label in found]
 
     def sample(self, line, key: str, road_id: str, stations: np.ndarray, polyline=None
-               ) -> tuple[np.ndarray, np.ndarray, list]:
-        """``(z_m, flag, notes)`` at ``stations`` (chainage m); ``road_id`` is the id as in the
-        source files, which ground points refer to."""
+               ) -> tuple[np.ndarray, np.ndarray, list, dict]:
+        """``(z_m, flag, notes, extra)`` at ``stations`` (chainage m); ``road_id`` is the id as
+        in the source files, which ground points refer to. ``extra`` describes what the data
+        can resolve: ``cell_m`` (DEM) or ``spacing_m`` (points), and per station
+        ``offset_m`` (where across the corridor the profile was read) and ``filter_m`` (the
+        equivalent length of the cell-crossing filter, 0 where none)."""
         step, max_gap = self.cfg["profile.step_m"], self.cfg["profile.max_gap_m"]
         notes: list = []
         if isinstance(self.ground, DemGround):
-            sx, sy = (polyline or Polyline(line)).at(stations)
-            gx, gy = self._to_ground(key, (sx[:1], sy[:1])).transform(sx, sy)
-            gx, gy = np.asarray(gx), np.asarray(gy)
-            arr, aff = read_dem_window(self.ground, gx, gy)
-            if arr is None:
-                z = np.full(len(stations), np.nan)
-            else:
-                z = bilinear(arr, aff, gx, gy)
+            z, extra, dem_notes = self._dem_profile(polyline or Polyline(line), key, stations)
+            notes.extend(dem_notes)
             zs, flag = regularise(stations, z, stations, step, max_gap)
-            return zs, flag, notes
+            return zs, flag, notes, extra
         pts = self.ground.points(road_id)
+        extra = {"cell_m": None, "spacing_m": None, "offset_m": np.zeros(len(stations)),
+                 "filter_m": np.zeros(len(stations))}
         if pts is None or len(pts["z_m"]) == 0:
-            return np.full(len(stations), np.nan), np.full(len(stations), MISSING, dtype=np.int8), notes
+            return np.full(len(stations), np.nan), np.full(len(stations), MISSING, dtype=np.int8), notes, extra
         if self.ground.mode == "chainage":
             chain = pts["chainage_m"]
             length = float(stations[-1]) if len(stations) else 0.0
@@ -129,7 +132,70 @@ class GroundSampler:
             chain, z = chain[~far], pts["z_m"][~far]
             self.points_used += len(chain)
         zs, flag = regularise(chain, z, stations, step, max_gap)
-        return zs, flag, notes
+        extra["spacing_m"] = point_spacing_m(chain)
+        return zs, flag, notes, extra
+
+    def _dem_profile(self, poly: Polyline, key: str, stations: np.ndarray) -> tuple[np.ndarray, dict, list]:
+        """Ground elevation along one road from the DEM, read where the road really is.
+
+        On a DEM whose cells are at most ``profile.corridor_max_cell_m``, the carriageway is
+        found across a corridor of ``profile.corridor_half_width_m`` either side of the
+        centreline and the profile is read on it; on a coarser DEM the centreline's samples
+        are filtered against the cell-crossing ripple (both in :mod:`pipeline.corridor`).
+        """
+        cfg, notes = self.cfg, []
+        step = cfg["profile.step_m"]
+        n = len(stations)
+        tr = self._to_ground(key, poly.at(stations[:1]))
+        sx, sy = poly.at(stations)
+        tx, ty = poly.at(stations + 0.5)
+        bx, by = poly.at(stations - 0.5)
+        hx, hy = tx - bx, ty - by
+        norm = np.hypot(hx, hy)
+        norm[norm == 0] = 1.0
+        nx, ny = -hy / norm, hx / norm  # left-hand normal
+        half = float(cfg["profile.corridor_half_width_m"])
+        gx, gy = (np.asarray(v) for v in tr.transform(sx, sy))
+        arr, aff = read_dem_window(self.ground, gx, gy, margin=2 + int(half))
+        extra = {"cell_m": None, "spacing_m": None, "offset_m": np.zeros(n), "filter_m": np.zeros(n)}
+        if arr is None:
+            return np.full(n, np.nan), extra, notes
+        cell = dem_cell_m(self.ground, aff, float(np.nanmean(gy)))
+        extra["cell_m"] = cell
+        if cell <= cfg["profile.corridor_max_cell_m"] and half > 0:
+            do = max(min(cell / 2, 1.0), 0.25)
+            offs = np.arange(-half, half + do / 2, do)
+            px = sx[:, None] + offs[None, :] * nx[:, None]
+            py = sy[:, None] + offs[None, :] * ny[:, None]
+            qx, qy = (np.asarray(v).reshape(px.shape) for v in tr.transform(px.ravel(), py.ravel()))
+            section = bilinear(arr, aff, qx, qy)
+            off = carriageway_offsets(section, offs, step, cfg["profile.carriageway_width_m"])
+            extra["offset_m"] = off
+            ox, oy = (np.asarray(v) for v in tr.transform(sx + off * nx, sy + off * ny))
+            z = bilinear(arr, aff, ox, oy)
+            big = np.abs(off) > 1.0
+            if big.any():
+                notes.append(("profile read on the carriageway, off the centreline", None, None,
+                              f"the carriageway was found {np.median(np.abs(off[big])):.1f} m (up to "
+                              f"{np.max(np.abs(off)):.1f} m) from the given centreline over "
+                              f"{100 * big.mean():.0f} % of the road; the profile is read there "
+                              f"(offsets per station in profiles.parquet, ground_offset_m)"))
+            return z, extra, notes
+        h = min(step, cell / 4)
+        fine = np.arange(0.0, stations[-1] + h / 2, h) if n else stations
+        fx, fy = poly.at(fine)
+        qx, qy = (np.asarray(v) for v in tr.transform(fx, fy))
+        zf = bilinear(arr, aff, qx, qy)
+        heading = np.arctan2(np.gradient(qy), np.gradient(qx))
+        zf, box = cell_crossing_filter(fine, zf, heading, cell)
+        z = np.interp(stations, fine, zf)
+        z[~np.isfinite(np.interp(stations, fine, np.where(np.isfinite(zf), 0.0, np.nan)))] = np.nan
+        extra["filter_m"] = np.interp(stations, fine, box)
+        notes.append(("profile filtered against the DEM's cell-crossing ripple", None, None,
+                      f"DEM cells of {cell:.1f} m: the profile is averaged over {np.median(box):.0f} m "
+                      f"(median) along the road, and no feature shorter than "
+                      f"{resolution_length_m(cell, None, step, float(np.median(box))):.0f} m is resolved"))
+        return z, extra, notes
 
 
 def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source) -> RoadOutcome:
@@ -141,7 +207,7 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
     poly = Polyline(line)
     out.polyline = poly
     stations = station_chainages(row["length_m"], cfg["profile.step_m"])
-    z, flag, notes = sampler.sample(line, row["work_key"], row["source_id"], stations, poly)
+    z, flag, notes, extra = sampler.sample(line, row["work_key"], row["source_id"], stations, poly)
     out.notes.extend(notes)
     have = np.isfinite(z)
     if not have.any():
@@ -183,24 +249,61 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
         "y": np.asarray(y, dtype=float),
         "ground_z_m": z,
         "ground_flag": FLAG_NAMES[flag],
+        "ground_offset_m": extra["offset_m"],
+        "filter_m": extra["filter_m"],
     })
+    out.data = {"cell_m": extra["cell_m"], "spacing_m": extra["spacing_m"],
+                "resolution_m": resolution_length_m(extra["cell_m"], extra["spacing_m"], cfg["profile.step_m"],
+                                                    float(np.median(extra["filter_m"])))}
     return out
 
 
 def road_alignment(out: RoadOutcome, cfg: Config) -> list:
-    """Fit the vertical alignment to a road's profile (the alignment stage); returns the
-    fitted stretches."""
+    """Fit the vertical alignment to a road's profile (the alignment stage), with each
+    curve's uncertainty (:mod:`pipeline.uncertainty`); returns the fitted stretches."""
     from .alignment import fit_profile
 
     prof = out.profile
+    ch = prof["chainage_m"].to_numpy()
     usable = np.where(prof["ground_flag"].to_numpy() == "masked", np.nan, prof["ground_z_m"].to_numpy())
-    stretches, curves, fitted, grade = fit_profile(prof["chainage_m"].to_numpy(), usable,
-                                                   cfg["profile.step_m"], alignment_options(cfg))
+    res_m = float(out.data.get("resolution_m", cfg["profile.step_m"]))
+    filt = prof["filter_m"].to_numpy() if "filter_m" in prof else None
+    stretches, curves, fitted, grade = fit_profile(ch, usable, cfg["profile.step_m"],
+                                                   alignment_options(cfg) | {"resolution_m": res_m},
+                                                   filter_m=filt if filt is not None and filt.any() else None)
     prof["fitted_z_m"] = fitted
     prof["grade_pct"] = grade * 100.0
+    curves = curves.join(curve_uncertainties(stretches, ch, usable, res_m, cfg))
     curves.insert(0, "road_id", out.road_id)
     out.curves = curves
     return stretches
+
+
+UNCERTAINTY_COLUMNS = ["a_sd_pct", "length_sd_m", "corr_al", "k_sd", "noise_sd_m", "noise_rho", "significance",
+                       "resolution_m"]
+
+
+def curve_uncertainties(stretches: list, ch: np.ndarray, z: np.ndarray, res_m: float, cfg: Config) -> pd.DataFrame:
+    """One row per curve, in the curve table's order: the standard deviations of A, L and K,
+    the residual noise and its correlation, and the significance of the grade change
+    (A / sd_A)."""
+    from .uncertainty import curve_parameter_covariance, k_sd
+
+    rows = []
+    for al in stretches:
+        for i in range(1, len(al.x) - 1):
+            u = curve_parameter_covariance(al, i, ch, z, cfg["alignment.noise_floor_m"], res_m)
+            rows.append(u)
+    frame = pd.DataFrame(rows, columns=["a_sd_pct", "length_sd_m", "corr_al", "noise_sd_m", "noise_rho"])
+    if not len(frame):
+        return pd.DataFrame({c: pd.Series(dtype=float) for c in UNCERTAINTY_COLUMNS})
+    a = np.concatenate([np.abs(np.diff(al.grades)) * 100 for al in stretches if len(al.x) > 2])
+    L = np.concatenate([al.L[1:-1] for al in stretches if len(al.x) > 2])
+    frame["k_sd"] = k_sd(a, L, frame["a_sd_pct"], frame["length_sd_m"], frame["corr_al"])
+    with np.errstate(divide="ignore"):
+        frame["significance"] = a / frame["a_sd_pct"].to_numpy()
+    frame["resolution_m"] = res_m
+    return frame[UNCERTAINTY_COLUMNS]
 
 
 def artefact_options(cfg: Config) -> dict:
@@ -218,6 +321,7 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
     from .alignment import RoadProfile
     from .sight import (LIMIT_NAMES, attribute, crest_sight_formula, sag_sight_formula, sight_both_ways,
                         sight_from)
+    from .uncertainty import sight_sd
 
     prof, curves = out.profile, out.curves
     ch = prof["chainage_m"].to_numpy()
@@ -248,7 +352,7 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
         for direction, col, sign in (("increasing", "pvc_m", 1), ("decreasing", "pvt_m", -1)):
             eyes = curves[col].to_numpy(dtype=float)
             r = sight_from(eyes, road.z, road.grade, rules, sign, fine)
-            no = attribute(eyes, r["limit_at_m"], r["limit"], curves, forward=sign > 0)
+            no = attribute(eyes, r["limit_at_m"], r["limit"], curves, forward=sign > 0, tol_m=max(1.0, 2 * fine))
             keep = no == curves["curve_no"].to_numpy()
             rows.append(pd.DataFrame({
                 "road_id": out.road_id, "chainage_m": eyes[keep], "direction": direction,
@@ -256,6 +360,9 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
                 "curve_no": no[keep], "grade": sign * road.grade(eyes[keep]),
             }))
         a, L = curves["a_pct"].to_numpy(float), curves["length_m"].to_numpy(float)
+        curves["sight_sd_m"] = sight_sd(curves["kind"].to_numpy(), a, L, curves["a_sd_pct"].to_numpy(float),
+                                        curves["length_sd_m"].to_numpy(float), curves["corr_al"].to_numpy(float),
+                                        rules, extra_sd_m=fine)
         curves["sight_formula_m"] = np.where(
             curves["kind"] == "crest",
             crest_sight_formula(a, L, rules.eye_height_m, rules.object_height_m),
@@ -408,6 +515,12 @@ def _frame(frames: list, empty: pd.DataFrame | None = None) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True)
 
 
+def _spacing(o: RoadOutcome) -> float:
+    """The ground data's own spacing on a road: DEM cell, or ground-point spacing (m)."""
+    v = o.data.get("cell_m") if o.data.get("cell_m") is not None else o.data.get("spacing_m")
+    return float(v) if v is not None else np.nan
+
+
 def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict) -> dict:
     """Run every per-road stage for a chunk of roads; returns plain tables (DataFrames) and
     counts, ready to be written to the run's work folder."""
@@ -436,7 +549,9 @@ def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict) -> dict:
         "hcurves": _frame([o.hcurves for o in outcomes]),
         "notes": pd.DataFrame(notes, columns=["road_id", "note", "from_m", "to_m", "detail"]),
         "status": pd.DataFrame({"road_id": [o.road_id for o in outcomes], "status": [o.status for o in outcomes],
-                                "reason": [o.reason for o in outcomes]}),
+                                "reason": [o.reason for o in outcomes],
+                                "ground_spacing_m": [_spacing(o) for o in outcomes],
+                                "resolution_m": [o.data.get("resolution_m", np.nan) for o in outcomes]}),
         "seconds": seconds,
         "points_used": sampler.points_used,
         "points_dropped": sampler.points_dropped,

@@ -229,22 +229,24 @@ def sight_both_ways(chainage_m: np.ndarray, profile, rules: SightRules, fine_ste
         out[f"beam_{name}_m"] = np.where(nan_eye, np.nan, beam)
         out[f"limit_{name}"] = np.where(nan_eye, END, lim).astype(np.int8)
         out[f"limit_at_{name}_m"] = at_ch
-        out[f"curve_{name}"] = attribute(ch, at_ch, lim, curves, forward=(sign > 0))
+        out[f"curve_{name}"] = attribute(ch, at_ch, lim, curves, forward=(sign > 0), tol_m=max(1.0, 2 * h))
     return out
 
 
-def attribute(eye_ch: np.ndarray, at_ch: np.ndarray, limit: np.ndarray, curves, forward: bool) -> np.ndarray:
+def attribute(eye_ch: np.ndarray, at_ch: np.ndarray, limit: np.ndarray, curves, forward: bool,
+              tol_m: float = 1.0) -> np.ndarray:
     """Curve number limiting each station's sight (0 = none).
 
     Line of sight: the crest whose PVC-PVT span holds the blocking point (within
-    1 m). Headlight: the sag nearest behind the hit point, in the direction of
+    ``tol_m``, at least the sight check's step: an angle point's curve is shorter than the
+    step and its blocking point falls a step to either side). Headlight: the sag nearest behind the hit point, in the direction of
     travel, that is not wholly behind the eye (the beam of an S > L sag meets
     the road on the tangent beyond the PVT).
     """
     res = np.zeros(len(eye_ch), dtype=np.int64)
     if curves is None or len(curves) == 0:
         return res
-    tol = 1.0
+    tol = tol_m
     for kind, code in (("crest", LOS), ("sag", BEAM)):
         c = curves[curves["kind"] == kind].sort_values("pvc_m")
         if not len(c):

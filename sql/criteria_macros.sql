@@ -20,3 +20,15 @@ CREATE OR REPLACE MACRO k_round(k) AS ceil(round(k, 1) - 1e-9);
 -- quad * v^2 + lin * v - s = 0
 CREATE OR REPLACE MACRO speed_for_sight(s, lin, quad) AS
     (-lin + sqrt(lin * lin + 4 * quad * s)) / (2 * quad);
+
+-- standard normal distribution function Phi(z), from the error function by the rational
+-- approximation of Abramowitz & Stegun (1964), Handbook of Mathematical Functions, 7.1.26
+-- (absolute error below 1.5e-7)
+CREATE OR REPLACE MACRO erf_as(x, t) AS
+    1 - t * (0.254829592 + t * (-0.284496736 + t * (1.421413741 + t * (-1.453152027 + t * 1.061405429))))
+        * exp(-x * x);
+CREATE OR REPLACE MACRO erf_abs(x) AS erf_as(abs(x), 1.0 / (1.0 + 0.3275911 * abs(x)));
+CREATE OR REPLACE MACRO normal_cdf(z) AS
+    CASE WHEN z IS NULL OR isnan(z) THEN NULL
+         WHEN z >= 0 THEN 0.5 * (1 + erf_abs(z / sqrt(2.0)))
+         ELSE 0.5 * (1 - erf_abs(z / sqrt(2.0))) END;

@@ -119,13 +119,47 @@ WITH limited AS (
     FROM judged j
     CROSS JOIN cset cs
     LEFT JOIN cspeeds t ON abs(t.speed - j.speed_kmh / cs.speed_to_kmh) < 1e-6
+), with_k AS (
+    SELECT j.*,
+           CASE j.kind
+                WHEN 'crest' THEN coalesce(k.crest_k_table, k_round(pow(k.ssd_design_set, 2) / cs.crest_k_const))
+                ELSE coalesce(k.sag_k_table,
+                     k_round(pow(k.ssd_design_set, 2) / (cs.sag_k_const + cs.sag_k_per_s * k.ssd_design_set)))
+           END * cs.length_to_m AS k_required,
+           -- probability that the sight distance over the curve is below the requirement, from
+           -- the standard deviation the fit gives it (pipeline/uncertainty.py)
+           CASE WHEN j.sight_sd_m > 0 AND isfinite(j.sight_sd_m)
+                THEN normal_cdf((coalesce(j.ssd_required_m, 0) - j.sight_available_m) / j.sight_sd_m)
+                WHEN j.sight_sd_m > 0 THEN 0.5
+                ELSE (j.deficient)::DOUBLE END AS p_deficient
+    FROM judged j
+    JOIN k_at k USING (road_id, curve_no)
+    CROSS JOIN cset cs
+), decided AS (
+    -- the verdict: deficient or adequate only where the data decide it at p_verdict; a grade
+    -- change the data barely show (significance = A / sd of A) is never judged deficient
+    SELECT w.*,
+           CASE WHEN NOT w.judged THEN 'undetermined'
+                WHEN w.p_deficient <= 1 - p.p_verdict THEN 'adequate'
+                WHEN coalesce(w.significance, 0) < p.min_significance THEN 'undetermined'
+                WHEN w.p_deficient >= p.p_verdict THEN 'deficient'
+                ELSE 'undetermined' END AS verdict
+    FROM with_k w
+    CROSS JOIN params p
 )
-SELECT j.*,
-       CASE j.kind
-            WHEN 'crest' THEN coalesce(k.crest_k_table, k_round(pow(k.ssd_design_set, 2) / cs.crest_k_const))
-            ELSE coalesce(k.sag_k_table,
-                 k_round(pow(k.ssd_design_set, 2) / (cs.sag_k_const + cs.sag_k_per_s * k.ssd_design_set)))
-       END * cs.length_to_m AS k_required
-FROM judged j
-JOIN k_at k USING (road_id, curve_no)
-CROSS JOIN cset cs;
+SELECT d.* EXCLUDE (deficient, confidence),
+       d.verdict = 'deficient' AS deficient,
+       d.confidence AS fit_confidence,
+       CASE WHEN d.verdict = 'undetermined' OR d.confidence = 'low'
+                 OR coalesce(d.significance, 0) < p.min_significance THEN 'low'
+            WHEN d.confidence = 'high' AND d.significance >= p.high_significance
+                 AND (d.p_deficient >= p.p_high OR d.p_deficient <= 1 - p.p_high) THEN 'high'
+            ELSE 'medium' END AS confidence,
+       CASE WHEN d.verdict <> 'undetermined' THEN NULL
+            WHEN NOT d.judged THEN 'ground data over the whole curve: a DEM without gaps there, or a survey'
+            WHEN d.resolution_m > p.fine_resolution_m
+                THEN 'a DEM of 2 m or finer (LiDAR), or a survey of the curve'
+            ELSE 'a survey of the curve: its sight distance is within the ground data''s error of the requirement'
+       END AS to_settle
+FROM decided d
+CROSS JOIN params p;

@@ -17,7 +17,8 @@
 --   f_exposure  = ln(1 + AADT) / ln(1 + aadt_ref) (at most 1; 0 where AADT is unknown).
 -- With the default weight a stretch hiding a hazard (Harwood & Bauer 2015, TRR 2486) ranks
 -- above every stretch that hides none. Rank 1 is the highest score (ties: larger shortfall
--- first, then road and chainage).
+-- first, then road and chainage). Stretches of curves whose verdict is 'undetermined' (the ground
+-- data cannot decide; see evaluate.sql) are listed after every deficient one, with their verdict.
 
 CREATE OR REPLACE TEMP VIEW stretches AS
 WITH flagged AS (
@@ -55,6 +56,7 @@ WITH scored AS (
            s.to_m - s.from_m AS stretch_length_m,
            rr.name AS road_name, rr.road_class, rr.speed_basis,
            c.a_pct, c.length_m AS curve_length_m, c.pvi_m, c.confidence, s.limit_kind,
+           coalesce(c.verdict, 'deficient') AS verdict, c.p_deficient, c.to_settle,
            coalesce(h.hidden_hazard, 'none') AS hidden_hazard, h.hazard_chainage_m, h.hazard_detail,
            h.hidden_from_m, h.hidden_to_m,
            least((s.ssd_required_m - s.sight_available_m) / s.ssd_required_m, 1.0) AS f_shortfall,
@@ -68,12 +70,13 @@ WITH scored AS (
     LEFT JOIN hazards h USING (road_id, curve_no, direction)
     CROSS JOIN params p
 )
-SELECT row_number() OVER (ORDER BY priority_score DESC, shortfall_m DESC, road_id, from_m, direction) AS rank,
+SELECT row_number() OVER (ORDER BY verdict = 'deficient' DESC, priority_score DESC, shortfall_m DESC, road_id,
+                                   from_m, direction) AS rank,
        road_id, curve_no, kind, direction, from_m, to_m, speed_kmh, supported_speed_kmh,
        ssd_required_m, sight_available_m, shortfall_m, k, k_required, aadt, priority_score,
        severity, hidden_hazard, hazard_chainage_m, hazard_detail, hidden_from_m, hidden_to_m,
        treatment_hint, speed_gap_kmh, stretch_length_m, road_name, road_class, speed_basis,
-       a_pct, curve_length_m, pvi_m, confidence, limit_kind,
+       a_pct, curve_length_m, pvi_m, verdict, p_deficient, confidence, to_settle, limit_kind,
        f_shortfall, f_speed, f_exposure
 FROM (
     SELECT *,

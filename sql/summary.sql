@@ -14,7 +14,9 @@ WITH classes AS (
            count(*) AS curves,
            count(*) FILTER (WHERE c.kind = 'crest') AS crests,
            count(*) FILTER (WHERE c.kind = 'sag') AS sags,
-           count(*) FILTER (WHERE c.deficient) AS deficient_curves
+           count(*) FILTER (WHERE c.deficient) AS deficient_curves,
+           count(*) FILTER (WHERE c.verdict = 'undetermined') AS undetermined_curves,
+           count(*) FILTER (WHERE c.confidence = 'high') AS high_confidence_curves
     FROM curve_eval c JOIN road_req rr USING (road_id)
     GROUP BY 1
 ), deficient_km AS (
@@ -23,11 +25,13 @@ WITH classes AS (
            sum(stretch_length_m) FILTER (WHERE severity = 'moderate') / 1000.0 AS km_moderate,
            sum(stretch_length_m) FILTER (WHERE severity = 'severe') / 1000.0 AS km_severe,
            count(*) AS deficient_stretches
-    FROM inventory GROUP BY 1
+    FROM inventory WHERE verdict = 'deficient' GROUP BY 1
 ), rows AS (
     SELECT p.road_class, p.roads_in, p.roads_evaluated, coalesce(p.km_audited, 0) AS km_audited,
            coalesce(c.curves, 0) AS curves, coalesce(c.crests, 0) AS crests, coalesce(c.sags, 0) AS sags,
            coalesce(c.deficient_curves, 0) AS deficient_curves,
+           coalesce(c.undetermined_curves, 0) AS undetermined_curves,
+           coalesce(c.high_confidence_curves, 0) AS high_confidence_curves,
            coalesce(d.deficient_stretches, 0) AS deficient_stretches,
            coalesce(d.km_minor, 0) AS deficient_km_minor,
            coalesce(d.km_moderate, 0) AS deficient_km_moderate,
@@ -39,7 +43,7 @@ WITH classes AS (
 SELECT * FROM rows
 UNION ALL
 SELECT 'network', sum(roads_in), sum(roads_evaluated), sum(km_audited), sum(curves), sum(crests), sum(sags),
-       sum(deficient_curves), sum(deficient_stretches), sum(deficient_km_minor), sum(deficient_km_moderate),
+       sum(deficient_curves), sum(undetermined_curves), sum(high_confidence_curves), sum(deficient_stretches), sum(deficient_km_minor), sum(deficient_km_moderate),
        sum(deficient_km_severe)
 FROM rows
 ORDER BY road_class = 'network', road_class;

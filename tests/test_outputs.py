@@ -33,7 +33,11 @@ def test_csv_columns_follow_the_contract(demo_out):
     d = pd.read_csv(demo_out / "deficiencies.csv")
     assert list(d.columns[: len(DEFICIENCY_CONTRACT)]) == DEFICIENCY_CONTRACT
     assert list(d["rank"]) == list(range(1, len(d) + 1))
-    assert np.all(np.diff(d["priority_score"]) <= 1e-9)  # rank 1 = highest score
+    # deficient stretches first, then those of undetermined curves; each group by score
+    assert set(d["verdict"]) <= {"deficient", "undetermined"}
+    assert not (d["verdict"].eq("deficient").astype(int).diff().fillna(0) > 0).any()
+    for _, grp in d.groupby("verdict"):
+        assert np.all(np.diff(grp["priority_score"]) <= 1e-9)  # rank 1 = highest score
     assert (d["shortfall_m"] > 0).all()
     np.testing.assert_allclose(d["shortfall_m"], d["ssd_required_m"] - d["sight_available_m"], atol=2e-3)
     assert (d["from_m"] <= d["to_m"]).all()
@@ -41,7 +45,10 @@ def test_csv_columns_follow_the_contract(demo_out):
     # every deficiency belongs to a curve judged deficient
     bad = c[c["deficient"].astype(str).str.lower() == "true"][["road_id", "curve_no"]]
     keys = set(map(tuple, bad.to_numpy()))
-    assert all((r, n) in keys for r, n in d[["road_id", "curve_no"]].dropna().to_numpy())
+    sure = d[d["verdict"] == "deficient"]
+    assert all((r, n) in keys for r, n in sure[["road_id", "curve_no"]].dropna().to_numpy())
+    # and 'deficient' is true exactly where the verdict says so
+    assert (c["deficient"].astype(str).str.lower().eq("true") == c["verdict"].eq("deficient")).all()
 
 
 def test_profiles_parquet_has_sight_both_ways(demo_out):

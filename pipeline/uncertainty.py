@@ -1,0 +1,193 @@
+"""How well the ground data determine each vertical curve and the sight distance over it.
+
+For every curve the fitted alignment's parameters near it are perturbed to get the local
+Jacobian of the model, and the covariance of the grade change A and length L follows from the
+linearised least-squares result (e.g. Seber & Wild, *Nonlinear Regression*, Wiley 1989,
+sec. 2.1):
+
+    Cov(theta) = s^2 (J^T J)^-1,      theta = (Y_{i-1}, X_i, Y_i, Y_{i+1}, L_i)
+
+with ``s^2`` the residual variance around the curve, robustly estimated (1.4826 MAD; Hampel
+1974, *JASA* 69(346) 383-393) and inflated for errors correlated from one station to the next
+by the AR(1) factor ``(1 + rho) / (1 - rho)``, rho the lag-1 autocorrelation of the residuals
+(the effective sample size of a mean under AR(1) errors; Box, Jenkins & Reinsel, *Time Series
+Analysis*, 4th ed., Wiley 2008, ch. 3). DEM errors and what is left of cell-crossing ripple are
+correlated over tens of metres, so this factor matters: with rho = 0.8 the variance is nine
+times the white-noise value.
+
+Two terms are added to the variance of L for what the data cannot resolve: a feature shorter
+than the data's resolution length lambda (two cells, or two point spacings, or the profile
+filter; :func:`pipeline.corridor.resolution_length_m`) is only known to within lambda, whose
+uniform-error variance is lambda^2 / 12 (common practice, no source).
+
+The sight distance over the curve follows the closed-form AASHTO Green Book (2018) ch. 3
+relations (crest: line of sight between the eye and object heights; sag: headlight reach), and
+its standard deviation is propagated from Cov(A, L) by the delta method with numerical
+derivatives (e.g. JCGM 100:2008, *Guide to the expression of uncertainty in measurement*,
+sec. 5.1). The probability that the curve is deficient is then
+
+    P = Phi((SSD_required - S_available) / sd_S)
+
+computed in SQL (``sql/criteria_macros.sql``, ``normal_cdf``) with the verdict rules.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .alignment import Alignment, model_z
+from .sight import SightRules, crest_sight_formula, sag_sight_formula
+
+
+def residual_noise(r: np.ndarray) -> tuple[float, float]:
+    """Robust spread and lag-1 autocorrelation of residuals.
+
+    Parameters
+    ----------
+    r : ndarray
+        Residuals (m) at evenly spaced stations, NaN ignored.
+
+    Returns
+    -------
+    (float, float)
+        ``sigma`` = 1.4826 MAD (m; Hampel 1974) and ``rho``, the lag-1 autocorrelation
+        clipped to [0, 0.95] (0 for fewer than 8 residuals).
+    """
+    r = np.asarray(r, dtype=float)
+    ok = np.isfinite(r)
+    if ok.sum() < 3:
+        return 0.0, 0.0
+    v = r[ok]
+    sigma = float(1.4826 * np.median(np.abs(v - np.median(v))))
+    if ok.sum() < 8:
+        return sigma, 0.0
+    rc = np.where(ok, r - v.mean(), 0.0)
+    pair = ok[1:] & ok[:-1]
+    den = float(rc[ok] @ rc[ok])
+    rho = float(rc[1:][pair] @ rc[:-1][pair]) / den * (ok.sum() / max(pair.sum(), 1)) if den > 0 else 0.0
+    return sigma, float(np.clip(rho, 0.0, 0.95))
+
+
+def ar1_variance_factor(rho: float) -> float:
+    """Variance inflation ``(1 + rho) / (1 - rho)`` for AR(1) errors (Box et al. 2008, ch. 3)."""
+    return (1.0 + rho) / (1.0 - rho)
+
+
+def _jacobian(al: Alignment, i: int, xs: np.ndarray) -> np.ndarray:
+    """d z(xs) / d theta for theta = (Y_{i-1}, X_i, Y_i, Y_{i+1}, L_i), central differences
+    (forward for L near 0, which cannot go negative)."""
+    X, Y, L = al.x.astype(float), al.y.astype(float), al.L.astype(float)
+    cols = []
+    for kind, j, d in (("y", i - 1, 0.01), ("x", i, 0.25), ("y", i, 0.01), ("y", i + 1, 0.01), ("l", i, 0.5)):
+        lo_h, hi_h = d, d
+        if kind == "l" and L[j] < d:
+            lo_h = 0.0
+        zs = []
+        for h in (hi_h, -lo_h):
+            X2, Y2, L2 = X.copy(), Y.copy(), L.copy()
+            {"x": X2, "y": Y2, "l": L2}[kind][j] += h
+            zs.append(model_z(X2, Y2, L2, xs))
+        cols.append((zs[0] - zs[1]) / (hi_h + lo_h))
+    return np.column_stack(cols)
+
+
+def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.ndarray,
+                               sigma_floor_m: float, resolution_m: float) -> dict:
+    """Covariance of the grade change A (%) and length L (m) of the curve at PVI ``i``.
+
+    Parameters
+    ----------
+    al : Alignment
+        Fitted alignment of the stretch (``i`` an interior PVI).
+    xs, zs : ndarray
+        The stretch's stations (m) and ground elevations (m) used by the fit (NaN = unused).
+    sigma_floor_m : float
+        Smallest residual spread assumed (m).
+    resolution_m : float
+        Resolution length lambda of the ground data (m); adds lambda^2 / 12 to var(L).
+
+    Returns
+    -------
+    dict
+        ``a_sd_pct, length_sd_m, corr_al`` (correlation of A and L), ``noise_sd_m``,
+        ``noise_rho``, ``stations``.
+    """
+    X, Y, L = al.x, al.y, al.L
+    lo, hi = X[i - 1], X[i + 1]
+    on = (xs >= lo) & (xs <= hi) & np.isfinite(zs)
+    x, z = xs[on], zs[on]
+    r_full = np.where((xs >= lo) & (xs <= hi), zs - al.z(xs), np.nan)
+    sigma, rho = residual_noise(r_full[(xs >= lo) & (xs <= hi)])
+    sigma = max(sigma, sigma_floor_m)
+    s2 = sigma**2 * ar1_variance_factor(rho)
+    out = {"a_sd_pct": np.inf, "length_sd_m": np.inf, "corr_al": 0.0, "noise_sd_m": sigma, "noise_rho": rho,
+           "stations": int(on.sum())}
+    if len(x) < 6:
+        return out
+    J = _jacobian(al, i, x)
+    cov = s2 * np.linalg.pinv(J.T @ J)
+    d1, d2 = X[i] - X[i - 1], X[i + 1] - X[i]
+    g1, g2 = (Y[i] - Y[i - 1]) / d1, (Y[i + 1] - Y[i]) / d2
+    dg1 = np.array([-1 / d1, -g1 / d1, 1 / d1, 0.0, 0.0])
+    dg2 = np.array([0.0, g2 / d2, -1 / d2, 1 / d2, 0.0])
+    sgn = 1.0 if g2 >= g1 else -1.0
+    D = np.vstack([100.0 * sgn * (dg2 - dg1), [0.0, 0.0, 0.0, 0.0, 1.0]])
+    C = D @ cov @ D.T
+    C[1, 1] += resolution_m**2 / 12.0
+    a_sd, l_sd = float(np.sqrt(max(C[0, 0], 0.0))), float(np.sqrt(max(C[1, 1], 0.0)))
+    out.update(a_sd_pct=a_sd, length_sd_m=l_sd,
+               corr_al=float(C[0, 1] / (a_sd * l_sd)) if a_sd > 0 and l_sd > 0 else 0.0)
+    return out
+
+
+def k_sd(a_pct, length_m, a_sd_pct, length_sd_m, corr_al):
+    """Standard deviation of K = L / A (m per %) by the delta method (JCGM 100:2008, 5.1)."""
+    a = np.asarray(a_pct, dtype=float)
+    L = np.asarray(length_m, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dk_da, dk_dl = -L / a**2, 1.0 / a
+        var = (dk_da * a_sd_pct) ** 2 + (dk_dl * length_sd_m) ** 2 \
+            + 2 * dk_da * dk_dl * corr_al * a_sd_pct * length_sd_m
+    return np.sqrt(np.maximum(var, 0.0))
+
+
+def sight_sd(kind, a_pct, length_m, a_sd_pct, length_sd_m, corr_al, rules: SightRules,
+             extra_sd_m: float = 0.0) -> np.ndarray:
+    """Standard deviation (m) of the closed-form sight distance over each curve.
+
+    Parameters
+    ----------
+    kind : array of str
+        'crest' or 'sag'.
+    a_pct, length_m, a_sd_pct, length_sd_m, corr_al : array
+        Each curve's A (%), L (m), their standard deviations and correlation.
+    rules : SightRules
+        Eye, object and headlight heights, beam angle and look-ahead.
+    extra_sd_m : float
+        Added in quadrature: the discretisation of the sight check (m).
+
+    Returns
+    -------
+    ndarray
+        sd of min(S, look-ahead) (m), with S from :func:`pipeline.sight.crest_sight_formula`
+        or :func:`pipeline.sight.sag_sight_formula`; derivatives by central differences.
+    """
+    kind = np.asarray(kind)
+    a = np.asarray(a_pct, dtype=float)
+    L = np.asarray(length_m, dtype=float)
+
+    def S(av, lv):
+        av = np.maximum(av, 1e-6)
+        lv = np.maximum(lv, 0.0)
+        crest = crest_sight_formula(av, lv, rules.eye_height_m, rules.object_height_m)
+        sag = sag_sight_formula(av, lv, rules.headlight_height_m, rules.beam_angle_deg)
+        return np.minimum(np.where(kind == "crest", crest, sag), rules.lookahead_m)
+
+    ha = np.maximum(0.01 * a, 1e-3)
+    hl = np.maximum(0.01 * L, 0.1)
+    ds_da = (S(a + ha, L) - S(a - ha, L)) / (2 * ha)
+    ds_dl = (S(a, L + hl) - S(a, np.maximum(L - hl, 0.0))) / (L + hl - np.maximum(L - hl, 0.0))
+    a_sd = np.where(np.isfinite(a_sd_pct), a_sd_pct, 1e6)
+    l_sd = np.where(np.isfinite(length_sd_m), length_sd_m, 1e6)
+    var = (ds_da * a_sd) ** 2 + (ds_dl * l_sd) ** 2 + 2 * ds_da * ds_dl * corr_al * a_sd * l_sd
+    return np.sqrt(np.maximum(var, 0.0) + extra_sd_m**2)
