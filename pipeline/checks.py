@@ -38,11 +38,13 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
     sampler = GroundSampler(ground, roads.work_crs, cfg)
     covered = total = 0.0
     no_ground = []
+    spacing: list = []
     sub = cfg.copy_with({"profile.step_m": sample_step_m})
     sampler.cfg = sub
     for _, row in t[ok].iterrows():
         st = station_chainages(row["length_m"], sample_step_m)
-        z, _, _, _ = sampler.sample(row["geometry"], row["work_key"], row["source_id"], st)
+        z, _, _, extra = sampler.sample(row["geometry"], row["work_key"], row["source_id"], st)
+        spacing.append(extra["cell_m"] if extra["cell_m"] is not None else extra["spacing_m"])
         have = np.isfinite(z)
         covered += have.sum() * sample_step_m
         total += len(st) * sample_step_m
@@ -72,6 +74,7 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
         "ground": ground.describe(),
         "ground_coverage_pct": 100.0 * covered / total if total else 0.0,
         "problems": problems,
+        "data_quality": _data_support(ground, spacing, cfg),
     }
     if isinstance(ground, DemGround):
         import rasterio
@@ -80,3 +83,22 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
             info["ground"]["cell_size"] = [abs(src.res[0]), abs(src.res[1])]
             info["ground"]["size"] = [src.width, src.height]
     return info
+
+
+def _data_support(ground, spacing: list, cfg: Config) -> dict:
+    """What the ground data can support, before a run (:mod:`pipeline.quality`): their own
+    spacing (DEM cell, or ground points' median spacing), the shortest feature a profile at the
+    run's station step resolves, and what they cannot judge."""
+    from .corridor import resolution_length_m
+    from .quality import cannot_judge
+
+    kind = "dem" if getattr(ground, "kind", "") == "dem" else "points"
+    v = np.array([x for x in spacing if x is not None and np.isfinite(x)], dtype=float)
+    own = float(np.median(v)) if len(v) else None
+    # a coarse DEM's profile is also filtered over up to six cells (pipeline.corridor); the run
+    # measures the filter road by road, here the worst case is assumed
+    filt = 6.0 * own if (kind == "dem" and own is not None and own > cfg["profile.corridor_max_cell_m"]) else 0.0
+    res = resolution_length_m(own if kind == "dem" else None, own if kind == "points" else None,
+                              cfg["profile.step_m"], filt) if own is not None else None
+    return {"ground_kind": kind, "spacing_m": own, "resolution_m": res,
+            "cannot_judge": cannot_judge(kind, own, res)}

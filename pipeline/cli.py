@@ -241,6 +241,13 @@ def _validate(args) -> int:
     else:
         print(f"         ground points ({g['mode']}), {g['rows']} rows")
     print(f"         ground data cover {info['ground_coverage_pct']:.1f} % of the road length")
+    dq = info["data_quality"]
+    if dq["resolution_m"] is not None:
+        own = "DEM cells" if dq["ground_kind"] == "dem" else "ground points every"
+        print(f"What the ground data can support: {own} {dq['spacing_m']:.1f} m; shortest feature resolved "
+              f"about {dq['resolution_m']:.0f} m")
+    for sentence in dq["cannot_judge"]:
+        print(f"  - {sentence}")
     if info["problems"]:
         print(f"Problems ({len(info['problems'])}):")
         for p in info["problems"]:

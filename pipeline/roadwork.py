@@ -274,9 +274,24 @@ def road_alignment(out: RoadOutcome, cfg: Config) -> list:
     prof["fitted_z_m"] = fitted
     prof["grade_pct"] = grade * 100.0
     curves = curves.join(curve_uncertainties(stretches, ch, usable, res_m, cfg))
+    _flag_angle_points(curves)
     curves.insert(0, "road_id", out.road_id)
     out.curves = curves
     return stretches
+
+
+def _flag_angle_points(curves: pd.DataFrame) -> None:
+    """Flag curves whose length is within two standard deviations of zero: the data show a
+    grade change but cannot tell a short curve from an angle point."""
+    if not len(curves):
+        return
+    short = (curves["length_m"] < 2 * curves["length_sd_m"]) & ~curves["flags"].str.contains("angle point")
+    for i in curves.index[short]:
+        flag = (f"angle point or very short curve: L = {curves.at[i, 'length_m']:.0f} m is within two standard "
+                f"deviations ({2 * curves.at[i, 'length_sd_m']:.0f} m) of none at all")
+        curves.at[i, "flags"] = "; ".join(f for f in (curves.at[i, "flags"], flag) if f)
+        if curves.at[i, "confidence"] == "high":
+            curves.at[i, "confidence"] = "medium"
 
 
 UNCERTAINTY_COLUMNS = ["a_sd_pct", "length_sd_m", "corr_al", "k_sd", "noise_sd_m", "noise_rho", "significance",

@@ -178,7 +178,7 @@ def sight_sd(kind, a_pct, length_m, a_sd_pct, length_sd_m, corr_al, rules: Sight
 
     def S(av, lv):
         av = np.maximum(av, 1e-6)
-        lv = np.maximum(lv, 0.0)
+        lv = np.maximum(lv, 1e-6)
         crest = crest_sight_formula(av, lv, rules.eye_height_m, rules.object_height_m)
         sag = sag_sight_formula(av, lv, rules.headlight_height_m, rules.beam_angle_deg)
         return np.minimum(np.where(kind == "crest", crest, sag), rules.lookahead_m)
@@ -186,7 +186,10 @@ def sight_sd(kind, a_pct, length_m, a_sd_pct, length_sd_m, corr_al, rules: Sight
     ha = np.maximum(0.01 * a, 1e-3)
     hl = np.maximum(0.01 * L, 0.1)
     ds_da = (S(a + ha, L) - S(a - ha, L)) / (2 * ha)
-    ds_dl = (S(a, L + hl) - S(a, np.maximum(L - hl, 0.0))) / (L + hl - np.maximum(L - hl, 0.0))
+    # the closed forms are continuous in L for L > 0 (S(A, 0) = 0 is a limit of the S < L case
+    # that no real curve takes), so the lower point stays just above 0
+    low = np.maximum(L - hl, 1e-6)
+    ds_dl = (S(a, L + hl) - S(a, low)) / (L + hl - low)
     a_sd = np.where(np.isfinite(a_sd_pct), a_sd_pct, 1e6)
     l_sd = np.where(np.isfinite(length_sd_m), length_sd_m, 1e6)
     var = (ds_da * a_sd) ** 2 + (ds_dl * l_sd) ** 2 + 2 * ds_da * ds_dl * corr_al * a_sd * l_sd
