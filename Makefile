@@ -7,7 +7,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
 
-.PHONY: demo test bench bench-accuracy clean
+.PHONY: demo test bench bench-accuracy bench-realistic clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -31,6 +31,9 @@ bench: $(VENV)/.installed
 
 bench-accuracy: $(VENV)/.installed
 	$(BIN)/python benchmarks/alignment_accuracy.py
+
+bench-realistic: $(VENV)/.installed
+	$(BIN)/python benchmarks/realistic.py
 
 clean:
 	rm -rf out .pytest_cache .hypothesis

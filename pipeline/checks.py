@@ -101,4 +101,4 @@ def _data_support(ground, spacing: list, cfg: Config) -> dict:
     res = resolution_length_m(own if kind == "dem" else None, own if kind == "points" else None,
                               cfg["profile.step_m"], filt) if own is not None else None
     return {"ground_kind": kind, "spacing_m": own, "resolution_m": res,
-            "cannot_judge": cannot_judge(kind, own, res)}
+            "cannot_judge": cannot_judge(kind, own, res, cfg["confidence.max_cell_for_verdict_m"])}

@@ -38,6 +38,8 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "z_column": ("z", "column holding ground elevation in a points file"),
         "max_offset_m": (15.0, "ground points farther than this from their road's centreline are dropped (m)"),
         "band": (1, "DEM band to read"),
+        "vertical_error_m": (0.0, "vertical error of the ground data (m, one standard deviation); 0 = for a DEM, assumed from the cell "
+                                  "size (0.10 m up to 3 m cells, 0.5 m up to 15 m, 1.5 m beyond) and reported"),
     },
     "profile": {
         "step_m": (5.0, "distance between profile stations along the road (m)"),
@@ -117,12 +119,16 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
                                     "step (diagnostic columns)"),
     },
     "confidence": {
-        "p_verdict": (0.9, "a curve is judged deficient (or adequate) only where the probability that its sight "
-                           "distance is short is at least (or at most 1 minus) this; otherwise undetermined"),
+        "p_verdict": (0.9, "a curve is judged deficient only where the probability that its sight distance is "
+                           "short of the requirement is at least this"),
+        "p_adequate": (0.05, "a curve is judged adequate only where that probability is at most this (smaller than "
+                             "1 - p_verdict: a wrong 'adequate' is the costlier error); between the two, undetermined"),
         "p_high": (0.99, "a verdict is of high confidence only where that probability is at least this "
                          "(or at most 1 minus it), the fit is clean and the grade change clear"),
         "min_significance": (3.0, "a grade change smaller than this many standard deviations is never judged deficient"),
         "high_significance": (5.0, "a grade change must be this many standard deviations for high confidence"),
+        "max_cell_for_verdict_m": (20.0, "on a DEM with cells coarser than this no curve is judged: every verdict "
+                                         "is undetermined and the report says why (m)"),
         "fine_resolution_m": (4.0, "ground data resolving features this short (m) count as survey-grade in the "
                                    "advice given with undetermined verdicts"),
     },

@@ -114,7 +114,7 @@ def crossing_periods(heading_rad: np.ndarray, cell_m: float, max_m: float) -> tu
 
 
 def cell_crossing_filter(chain_m: np.ndarray, z_m: np.ndarray, heading_rad: np.ndarray, cell_m: float,
-                         max_factor: float = 6.0) -> tuple[np.ndarray, np.ndarray]:
+                         max_factor: float = 3.0) -> tuple[np.ndarray, np.ndarray]:
     """Remove the ripple of bilinear samples of cell means along a road crossing the grid.
 
     Two running means (:func:`running_mean`) whose lengths are the local crossing periods
@@ -224,6 +224,26 @@ def carriageway_offsets(section_z: np.ndarray, offsets_m: np.ndarray, station_st
     if len(off) > 2:
         off = median_filter(off, size=n_along | 1, mode="nearest")
     return off
+
+
+def dem_vertical_error_m(cell_m: float | None) -> float:
+    """Vertical error (m, one standard deviation) assumed for a DEM of this cell size when the
+    user states none (``ground.vertical_error_m``).
+
+    0.10 m up to 3 m cells: airborne LiDAR, whose common specification is an RMSEz of 10 cm
+    (USGS Lidar Base Specification, quality level 2; from memory). 0.5 m up to 15 m cells:
+    national DEMs made by photogrammetry or from LiDAR resampled (from memory, typical of
+    published accuracy statements). 1.5 m beyond: global 30 m products, whose relative
+    (point-to-point) error is of this order (from memory). The assumption is stated in
+    ``run.json`` and the report; the residuals about the fit replace it where they are larger.
+    """
+    if cell_m is None or not np.isfinite(cell_m):
+        return 0.0
+    if cell_m <= 3.0:
+        return 0.10
+    if cell_m <= 15.0:
+        return 0.5
+    return 1.5
 
 
 def resolution_length_m(cell_m: float | None, spacing_m: float | None, step_m: float,

@@ -38,10 +38,12 @@ def params_table(cfg: Config) -> pd.DataFrame:
         "recon_gap_kmh": float(cfg["inventory.reconstruction_gap_kmh"]),
         "recon_aadt": float(cfg["inventory.reconstruction_aadt"]),
         "p_verdict": float(cfg["confidence.p_verdict"]),
+        "p_adequate": float(cfg["confidence.p_adequate"]),
         "p_high": float(cfg["confidence.p_high"]),
         "min_significance": float(cfg["confidence.min_significance"]),
         "high_significance": float(cfg["confidence.high_significance"]),
         "fine_resolution_m": float(cfg["confidence.fine_resolution_m"]),
+        "max_cell_for_verdict_m": float(cfg["confidence.max_cell_for_verdict_m"]),
     }])
 
 
@@ -68,4 +70,13 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
         summary = con.sql(sql_text("summary")).df()
     finally:
         con.close()
-    return Evaluation(curves=curve_eval, inventory=inventory, summary=summary)
+    return Evaluation(curves=_plain_text(curve_eval), inventory=_plain_text(inventory), summary=summary)
+
+
+def _plain_text(frame: pd.DataFrame) -> pd.DataFrame:
+    """Text columns as plain objects, whether or not a value is present (DuckDB gives an
+    all-NULL text column another pandas dtype than one with values)."""
+    for col in frame.columns:
+        if pd.api.types.is_string_dtype(frame[col]) or frame[col].dtype == object:
+            frame[col] = frame[col].astype(object).where(frame[col].notna(), None)
+    return frame

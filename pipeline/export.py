@@ -244,6 +244,8 @@ def data_quality_lines(dq: dict | None, units) -> list[tuple[str, str]]:
     res = "unknown" if dq["resolution_m"] is None else f"{L(dq['resolution_m']):.0f} {E}"
     lines = [
         ("Ground data", f"{kind} {spacing}; shortest feature resolved {res}"),
+        ("Vertical error of the ground", "not stated" if dq.get("vertical_error_m") is None else
+         f"{L(dq['vertical_error_m']):.2f} {E}, {dq['vertical_error_basis']}"),
         ("Estimated ground error", "no curves" if dq["noise_sd_m"] is None else
          f"{L(dq['noise_sd_m']):.2f} {E} about the fit (station-to-station correlation {dq['noise_rho']:.2f})"),
         ("Judged with high confidence", "no curves" if dq["curves_high_pct"] is None else

@@ -7,6 +7,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from .corridor import dem_vertical_error_m
+
 
 def _median(values) -> float | None:
     v = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(dtype=float)
@@ -14,7 +16,8 @@ def _median(values) -> float | None:
     return float(np.median(v)) if len(v) else None
 
 
-def cannot_judge(ground_kind: str, spacing_m: float | None, resolution_m: float | None) -> list[str]:
+def cannot_judge(ground_kind: str, spacing_m: float | None, resolution_m: float | None,
+                 max_cell_for_verdict_m: float = 20.0) -> list[str]:
     """Plain sentences on what ground data of this kind and resolution cannot judge.
 
     Parameters
@@ -25,6 +28,8 @@ def cannot_judge(ground_kind: str, spacing_m: float | None, resolution_m: float 
         DEM cell or ground-point spacing (m).
     resolution_m : float or None
         Shortest feature the profile resolves (m), :func:`pipeline.corridor.resolution_length_m`.
+    max_cell_for_verdict_m : float
+        DEM cells coarser than this get no curve verdict (``confidence.max_cell_for_verdict_m``).
 
     Notes
     -----
@@ -36,11 +41,11 @@ def cannot_judge(ground_kind: str, spacing_m: float | None, resolution_m: float 
     if resolution_m is None or spacing_m is None:
         return ["the ground data's resolution is unknown: no road had usable ground data"]
     what = f"DEM cells of {spacing_m:.1f} m" if ground_kind == "dem" else f"ground points every {spacing_m:.1f} m"
-    if ground_kind == "dem" and spacing_m > 20:
-        out.append(f"{what} cannot support a verdict on most single vertical curves of a rural road: the cells "
-                   f"are longer than many curves and mix the road with the land beside it. Treat every curve "
-                   f"found here as a pointer for a survey; only sight distances far from the requirement are "
-                   f"judged, and those only with low or medium confidence at best.")
+    if ground_kind == "dem" and spacing_m > max_cell_for_verdict_m:
+        out.append(f"{what} cannot support a verdict on a single vertical curve of a rural road: the cells are "
+                   f"as long as many curves and mix the road with the land beside it. No curve is judged here: "
+                   f"every verdict is undetermined, and the curves found are only pointers for a survey or a "
+                   f"finer DEM.")
     if resolution_m > 4.0:
         out.append(f"With {what}, no feature shorter than about {resolution_m:.0f} m is resolved: a short, sharp "
                    f"crest or sag (L under about {2 * resolution_m:.0f} m) may be missed or smoothed into a "
@@ -56,13 +61,18 @@ def cannot_judge(ground_kind: str, spacing_m: float | None, resolution_m: float 
     return out
 
 
-def data_quality(ground_kind: str, roads: pd.DataFrame, curves: pd.DataFrame) -> dict:
+def data_quality(ground_kind: str, roads: pd.DataFrame, curves: pd.DataFrame, stated_error_m: float = 0.0,
+                 max_cell_for_verdict_m: float = 20.0) -> dict:
     """The data-quality statement of a run.
 
     Parameters
     ----------
     ground_kind : str
         'dem' or 'points'.
+    stated_error_m : float
+        ``ground.vertical_error_m``; 0 = assumed from the DEM's cell size.
+    max_cell_for_verdict_m : float
+        ``confidence.max_cell_for_verdict_m``.
     roads : DataFrame
         The road table with ``status``, ``length_m``, ``ground_spacing_m`` and ``resolution_m``.
     curves : DataFrame
@@ -79,6 +89,12 @@ def data_quality(ground_kind: str, roads: pd.DataFrame, curves: pd.DataFrame) ->
     ev = roads[roads["status"] == "evaluated"] if len(roads) else roads
     spacing = _median(ev["ground_spacing_m"]) if "ground_spacing_m" in ev else None
     res = _median(ev["resolution_m"]) if "resolution_m" in ev else None
+    if stated_error_m > 0:
+        err, basis = stated_error_m, "stated (ground.vertical_error_m)"
+    elif ground_kind == "dem" and spacing is not None:
+        err, basis = dem_vertical_error_m(spacing), "assumed from the DEM's cell size (ground.vertical_error_m = 0)"
+    else:
+        err, basis = None, "estimated from the ground points' scatter about the fit"
     n = len(curves)
     high = (curves["confidence"] == "high") if n else pd.Series(dtype=bool)
     km = float(ev["length_m"].sum()) / 1000.0 if len(ev) else 0.0
@@ -99,7 +115,9 @@ def data_quality(ground_kind: str, roads: pd.DataFrame, curves: pd.DataFrame) ->
         "curves_undetermined_pct": round(100.0 * float((curves["verdict"] == "undetermined").mean()), 1) if n else None,
         "km_evaluated": round(km, 3),
         "km_high_pct": round(100.0 * km_high / km, 1) if km > 0 else None,
-        "cannot_judge": cannot_judge(ground_kind, spacing, res),
+        "vertical_error_m": err,
+        "vertical_error_basis": basis,
+        "cannot_judge": cannot_judge(ground_kind, spacing, res, max_cell_for_verdict_m),
     }
 
 

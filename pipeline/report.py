@@ -336,6 +336,8 @@ def data_quality_html(dq: dict | None, units) -> str:
     facts = [
         (kind, "unknown" if dq["spacing_m"] is None else f"{L(dq['spacing_m']):.1f} {E}"),
         ("shortest feature resolved", "unknown" if dq["resolution_m"] is None else f"{L(dq['resolution_m']):.0f} {E}"),
+        ("vertical error of the ground data", "not stated" if dq.get("vertical_error_m") is None else
+         f"{L(dq['vertical_error_m']):.2f} {E}, {dq['vertical_error_basis']}"),
         ("estimated ground error about the fit", "no curves" if dq["noise_sd_m"] is None else
          f"{L(dq['noise_sd_m']):.2f} {E} (correlation from station to station {dq['noise_rho']:.2f})"),
         ("curves judged with high confidence", "no curves" if dq["curves_high_pct"] is None else

@@ -16,7 +16,7 @@ import pandas as pd
 
 from .config import Config
 from .ingest import DemGround, PointGround, is_ballpark, read_dem_window, transformer
-from .corridor import carriageway_offsets, cell_crossing_filter, resolution_length_m
+from .corridor import carriageway_offsets, cell_crossing_filter, dem_vertical_error_m, resolution_length_m
 from .ingest import dem_cell_m
 from .profile import (FILLED, FLAG_NAMES, MASKED, MISSING, Polyline, bilinear, point_spacing_m, regularise,
                       run_lengths, station_chainages)
@@ -171,8 +171,16 @@ class GroundSampler:
             section = bilinear(arr, aff, qx, qy)
             off = carriageway_offsets(section, offs, step, cfg["profile.carriageway_width_m"])
             extra["offset_m"] = off
-            ox, oy = (np.asarray(v) for v in tr.transform(sx + off * nx, sy + off * ny))
-            z = bilinear(arr, aff, ox, oy)
+            # the road surface across the middle of the carriageway: a low quantile of the samples
+            # within 1.5 m of its centre, so a canopy or a vehicle over part of it does not lift it
+            band = np.arange(-1.5, 1.5 + do / 2, do)
+            bo = off[:, None] + band[None, :]
+            ox, oy = (np.asarray(v).reshape(bo.shape) for v in
+                      tr.transform((sx[:, None] + bo * nx[:, None]).ravel(), (sy[:, None] + bo * ny[:, None]).ravel()))
+            zb = bilinear(arr, aff, ox, oy)
+            z = np.full(n, np.nan)
+            whole = np.isfinite(zb).all(axis=1)
+            z[whole] = np.quantile(zb[whole], 0.25, axis=1)
             big = np.abs(off) > 1.0
             if big.any():
                 notes.append(("profile read on the carriageway, off the centreline", None, None,
@@ -252,7 +260,9 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
         "ground_offset_m": extra["offset_m"],
         "filter_m": extra["filter_m"],
     })
+    stated = float(cfg["ground.vertical_error_m"])
     out.data = {"cell_m": extra["cell_m"], "spacing_m": extra["spacing_m"],
+                "vertical_error_m": stated if stated > 0 else dem_vertical_error_m(extra["cell_m"]),
                 "resolution_m": resolution_length_m(extra["cell_m"], extra["spacing_m"], cfg["profile.step_m"],
                                                     float(np.median(extra["filter_m"])))}
     return out
@@ -268,12 +278,20 @@ def road_alignment(out: RoadOutcome, cfg: Config) -> list:
     usable = np.where(prof["ground_flag"].to_numpy() == "masked", np.nan, prof["ground_z_m"].to_numpy())
     res_m = float(out.data.get("resolution_m", cfg["profile.step_m"]))
     filt = prof["filter_m"].to_numpy() if "filter_m" in prof else None
-    stretches, curves, fitted, grade = fit_profile(ch, usable, cfg["profile.step_m"],
-                                                   alignment_options(cfg) | {"resolution_m": res_m},
+    # the ground data's own error and resolution bound what the fit may resolve: the noise is
+    # at least the data's stated or assumed vertical error, and structure is sought on bins of
+    # half the resolution length
+    opts = alignment_options(cfg)
+    err = float(out.data.get("vertical_error_m", 0.0))
+    coarse = min(res_m / 2, float(ch[-1] - ch[0]) / 10)  # a short road still gets ten bins
+    opts |= {"resolution_m": res_m, "noise_floor_m": max(opts["noise_floor_m"], err),
+             "bin_m": max(opts["bin_m"], coarse), "min_tangent_m": max(opts["min_tangent_m"], coarse)}
+    stretches, curves, fitted, grade = fit_profile(ch, usable, cfg["profile.step_m"], opts,
                                                    filter_m=filt if filt is not None and filt.any() else None)
     prof["fitted_z_m"] = fitted
     prof["grade_pct"] = grade * 100.0
-    curves = curves.join(curve_uncertainties(stretches, ch, usable, res_m, cfg))
+    curves = curves.join(curve_uncertainties(stretches, ch, usable, res_m, opts["noise_floor_m"],
+                                             out.data.get("cell_m")))
     _flag_angle_points(curves)
     curves.insert(0, "road_id", out.road_id)
     out.curves = curves
@@ -295,10 +313,11 @@ def _flag_angle_points(curves: pd.DataFrame) -> None:
 
 
 UNCERTAINTY_COLUMNS = ["a_sd_pct", "length_sd_m", "corr_al", "k_sd", "noise_sd_m", "noise_rho", "significance",
-                       "resolution_m"]
+                       "resolution_m", "ground_spacing_m"]
 
 
-def curve_uncertainties(stretches: list, ch: np.ndarray, z: np.ndarray, res_m: float, cfg: Config) -> pd.DataFrame:
+def curve_uncertainties(stretches: list, ch: np.ndarray, z: np.ndarray, res_m: float,
+                        sigma_floor_m: float, cell_m: float | None = None) -> pd.DataFrame:
     """One row per curve, in the curve table's order: the standard deviations of A, L and K,
     the residual noise and its correlation, and the significance of the grade change
     (A / sd_A)."""
@@ -307,7 +326,7 @@ def curve_uncertainties(stretches: list, ch: np.ndarray, z: np.ndarray, res_m: f
     rows = []
     for al in stretches:
         for i in range(1, len(al.x) - 1):
-            u = curve_parameter_covariance(al, i, ch, z, cfg["alignment.noise_floor_m"], res_m)
+            u = curve_parameter_covariance(al, i, ch, z, sigma_floor_m, res_m, cell_m)
             rows.append(u)
     frame = pd.DataFrame(rows, columns=["a_sd_pct", "length_sd_m", "corr_al", "noise_sd_m", "noise_rho"])
     if not len(frame):
@@ -318,6 +337,7 @@ def curve_uncertainties(stretches: list, ch: np.ndarray, z: np.ndarray, res_m: f
     with np.errstate(divide="ignore"):
         frame["significance"] = a / frame["a_sd_pct"].to_numpy()
     frame["resolution_m"] = res_m
+    frame["ground_spacing_m"] = np.nan if cell_m is None else cell_m
     return frame[UNCERTAINTY_COLUMNS]
 
 

@@ -92,7 +92,7 @@ def _jacobian(al: Alignment, i: int, xs: np.ndarray) -> np.ndarray:
 
 
 def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.ndarray,
-                               sigma_floor_m: float, resolution_m: float) -> dict:
+                               sigma_floor_m: float, resolution_m: float, cell_m: float | None = None) -> dict:
     """Covariance of the grade change A (%) and length L (m) of the curve at PVI ``i``.
 
     Parameters
@@ -102,7 +102,14 @@ def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.nda
     xs, zs : ndarray
         The stretch's stations (m) and ground elevations (m) used by the fit (NaN = unused).
     sigma_floor_m : float
-        Smallest residual spread assumed (m).
+        The ground data's vertical error, stated or assumed (m): each DEM cell's own error.
+    cell_m : float, optional
+        DEM cell size (m). A cell's error reaches every station within about a cell of it, and
+        the cell-crossing filter spreads it over about one more, so in a profile at step h the
+        stations carry independent error of variance ``sigma_floor^2 * 2 c / h`` each (the
+        information of one sample per half cell crossed; checked against the realistic-ground
+        benchmark, where the spread of the sight-distance errors matches the standard
+        deviations given for 5 and 10 m DEMs).
     resolution_m : float
         Resolution length lambda of the ground data (m); adds lambda^2 / 12 to var(L).
 
@@ -118,13 +125,20 @@ def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.nda
     x, z = xs[on], zs[on]
     r_full = np.where((xs >= lo) & (xs <= hi), zs - al.z(xs), np.nan)
     sigma, rho = residual_noise(r_full[(xs >= lo) & (xs <= hi)])
+    step = float(np.median(np.diff(xs))) if len(xs) > 1 else 1.0
+    spread = max(2.0 * cell_m / step, 1.0) if cell_m else 1.0
+    s2 = max(sigma**2 * ar1_variance_factor(rho), sigma_floor_m**2 * spread)
     sigma = max(sigma, sigma_floor_m)
-    s2 = sigma**2 * ar1_variance_factor(rho)
     out = {"a_sd_pct": np.inf, "length_sd_m": np.inf, "corr_al": 0.0, "noise_sd_m": sigma, "noise_rho": rho,
            "stations": int(on.sum())}
     if len(x) < 6:
         return out
-    J = _jacobian(al, i, x)
+    # only PVIs i-2 .. i+2 shape the window (curves never overlap), so the Jacobian is taken on
+    # that piece of the alignment, with its end PVIs' curves dropped
+    a, b = max(i - 2, 0), min(i + 3, len(X))
+    piece = Alignment(x=X[a:b].copy(), y=Y[a:b].copy(), L=L[a:b].copy())
+    piece.L[0] = piece.L[-1] = 0.0
+    J = _jacobian(piece, i - a, x)
     cov = s2 * np.linalg.pinv(J.T @ J)
     d1, d2 = X[i] - X[i - 1], X[i + 1] - X[i]
     g1, g2 = (Y[i] - Y[i - 1]) / d1, (Y[i + 1] - Y[i]) / d2

@@ -136,11 +136,15 @@ WITH limited AS (
     JOIN k_at k USING (road_id, curve_no)
     CROSS JOIN cset cs
 ), decided AS (
-    -- the verdict: deficient or adequate only where the data decide it at p_verdict; a grade
-    -- change the data barely show (significance = A / sd of A) is never judged deficient
+    -- the verdict: deficient where the probability of a shortfall is at least p_verdict, adequate
+    -- only where it is at most p_adequate (smaller: a wrong 'adequate' is the costlier error);
+    -- a grade change the data barely show (significance = A / sd of A) is never judged deficient
     SELECT w.*,
            CASE WHEN NOT w.judged THEN 'undetermined'
-                WHEN w.p_deficient <= 1 - p.p_verdict THEN 'adequate'
+                -- cells this coarse mix the road with the land beside it at the scale of the
+                -- curves: no curve is judged on them
+                WHEN coalesce(w.ground_spacing_m, 0) > p.max_cell_for_verdict_m THEN 'undetermined'
+                WHEN w.p_deficient <= p.p_adequate THEN 'adequate'
                 WHEN coalesce(w.significance, 0) < p.min_significance THEN 'undetermined'
                 WHEN w.p_deficient >= p.p_verdict THEN 'deficient'
                 ELSE 'undetermined' END AS verdict
@@ -157,6 +161,8 @@ SELECT d.* EXCLUDE (deficient, confidence),
             ELSE 'medium' END AS confidence,
        CASE WHEN d.verdict <> 'undetermined' THEN NULL
             WHEN NOT d.judged THEN 'ground data over the whole curve: a DEM without gaps there, or a survey'
+            WHEN coalesce(d.ground_spacing_m, 0) > p.max_cell_for_verdict_m
+                THEN 'a DEM of 2 m or finer (LiDAR), or a survey: no curve is judged on cells this coarse'
             WHEN d.resolution_m > p.fine_resolution_m
                 THEN 'a DEM of 2 m or finer (LiDAR), or a survey of the curve'
             ELSE 'a survey of the curve: its sight distance is within the ground data''s error of the requirement'
