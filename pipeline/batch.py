@@ -147,8 +147,9 @@ class WorkFolder:
     def meta(self, k: int) -> dict:
         return json.loads((self.chunk(k) / "done.json").read_text())
 
-    def glob(self, name: str) -> str:
-        return str(self.path / "chunk_*" / f"{name}.parquet")
+    def files(self, name: str) -> list[str]:
+        """The chunk files of table ``name`` (a list: paths never go into SQL text)."""
+        return sorted(str(p) for p in self.path.glob(f"chunk_*/{name}.parquet"))
 
 
 def chunk_folder(work_path: Path, k: int) -> Path:
@@ -243,10 +244,14 @@ class NetworkResult:
     step_m: float = 5.0
     chunks: dict = field(default_factory=dict)
 
-    def _read(self, name: str, where: str = "", order: str = "") -> pd.DataFrame:
-        sql = f"SELECT * FROM read_parquet('{self.work.glob(name)}', union_by_name = true) {where} {order}"
+    def _read(self, name: str) -> pd.DataFrame:
+        from .sqlrun import parquet_relation
+
+        files = self.work.files(name)
+        if not files:
+            return _typed(name, None)
         with duckdb.connect() as con:
-            frame = con.sql(sql).df()
+            frame = parquet_relation(con, files).df()
         return frame if len(frame) else _typed(name, None)
 
     def _order(self, frame: pd.DataFrame, by: list[str]) -> pd.DataFrame:
@@ -267,10 +272,12 @@ class NetworkResult:
         ids = sorted({str(r) for r in road_ids})
         if not ids:
             return {}
+        from .sqlrun import parquet_view
+
         with duckdb.connect() as con:
             con.register("wanted", pd.DataFrame({"road_id": ids}))
-            frame = con.sql(f"SELECT p.* FROM read_parquet('{self.work.glob('profiles')}', union_by_name = true) p "
-                            f"JOIN wanted USING (road_id) ORDER BY road_id, chainage_m").df()
+            parquet_view(con, "stations", self.work.files("profiles"))
+            frame = con.sql("SELECT p.* FROM stations p JOIN wanted USING (road_id) ORDER BY road_id, chainage_m").df()
         return {rid: g.reset_index(drop=True) for rid, g in frame.groupby("road_id", sort=False)}
 
     @property
@@ -402,8 +409,8 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
         weakref.finalize(result, shutil.rmtree, owner, True)
     t0 = time.perf_counter()
     with progress.stage("judging curves (DuckDB)") as tick:
-        result.evaluation = evaluate(result.road_table(), work.glob("profiles"), result.curves,
-                                     work.glob("keypoints"), result.hazards, cset, cfg)
+        result.evaluation = evaluate(result.road_table(), work.files("profiles"), result.curves,
+                                     work.files("keypoints"), result.hazards, cset, cfg)
         tick()
     timings["evaluate"] = time.perf_counter() - t0
     return result
@@ -534,12 +541,12 @@ def accounting(result: NetworkResult) -> dict:
 
 def network_summary(result: NetworkResult) -> pd.DataFrame:
     """Roads and km in and evaluated, and ground coverage, by road class (``sql/network_summary.sql``)."""
-    from .sqlrun import sql_text
+    from .sqlrun import parquet_relation, sql_text
 
     with duckdb.connect() as con:
         con.register("roads", result.road_table())
-        con.sql(f"CREATE VIEW stations AS SELECT road_id, chainage_m, ground_flag "
-                f"FROM read_parquet('{result.work.glob('profiles')}', union_by_name = true)")
+        parquet_relation(con, result.work.files("profiles")).project(
+            "road_id, chainage_m, ground_flag").create_view("stations")
         return con.sql(sql_text("network_summary")).df()
 
 

@@ -70,17 +70,17 @@ def write_profiles_from_work(path: Path, result, units) -> None:
     stations are never all in memory), in road order then chainage, in the run's units."""
     import duckdb
 
-    glob = result.work.glob("profiles")
+    from .sqlrun import parquet_view, write_parquet_from
+
     with duckdb.connect() as con:
-        cols = [r[0] for r in con.sql(f"DESCRIBE SELECT * FROM read_parquet('{glob}', union_by_name = true)")
-                .fetchall()]
+        parquet_view(con, "stations", result.work.files("profiles"))
+        cols = [r[0] for r in con.sql("DESCRIBE SELECT * FROM stations").fetchall()]
         exprs = [f'"{c}" / {units.divisor(c)!r} AS "{units.column(c)}"' if units.divisor(c) != 1.0 else f'"{c}"'
                  for c in cols]
         con.register("road_order", pd.DataFrame({"road_id": result.roads.table["road_id"],
                                                  "_order": np.arange(len(result.roads.table))}))
-        con.sql(f"COPY (SELECT {', '.join(exprs)} FROM read_parquet('{glob}', union_by_name = true) p "
-                f"JOIN road_order USING (road_id) ORDER BY _order, chainage_m) "
-                f"TO '{path}' (FORMAT parquet)")
+        write_parquet_from(con.sql(f"SELECT {', '.join(exprs)} FROM stations p "
+                                   f"JOIN road_order USING (road_id) ORDER BY _order, chainage_m"), path)
 
 
 CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
