@@ -59,8 +59,10 @@ def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.nda
     speed (station by station; the road's figure is then the desired speed, the ceiling);
     otherwise the road is skipped. With ``speed.source = "predicted"`` every road is judged at
     predicted speeds."""
+    from .evidence import speed_unit
+
     raw = table["speed_raw"].to_numpy(dtype=float)
-    if cfg["output.units"] == "us":  # the speed column is in mph
+    if speed_unit(cfg) == "mph":  # the speed column is in mph
         from .units import kmh_per_mph
 
         raw = raw * kmh_per_mph()
@@ -243,6 +245,8 @@ class NetworkResult:
     evaluation: object = None
     step_m: float = 5.0
     chunks: dict = field(default_factory=dict)
+    evidence: dict = field(default_factory=dict)  # what the inputs say (pipeline.evidence)
+    extra_notes: pd.DataFrame | None = None  # per-road notes made before the chunks (substituted speeds)
 
     def _read(self, name: str) -> pd.DataFrame:
         from .sqlrun import parquet_relation
@@ -315,7 +319,10 @@ class NetworkResult:
         })
 
     def data_notes(self) -> pd.DataFrame:
-        return self._order(self._read("notes"), [])
+        notes = self._read("notes")
+        if self.extra_notes is not None and len(self.extra_notes):
+            notes = pd.concat([self.extra_notes.astype(notes.dtypes.to_dict()), notes], ignore_index=True)
+        return self._order(notes, [])
 
 
 # ------------------------------------------------------------------- the run
@@ -359,9 +366,16 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
                       if cfg["structures.file"] else None)
         junction_layer = (read_features(cfg["junctions.file"], cfg, roads, "junctions", cfg["junctions.layer"])
                           if cfg["junctions.file"] else None)
+        from .evidence import examine, screen_speeds, speed_notes
+
+        evidence = examine(roads, ground, cfg)
         tick()
     table = roads.table
+    found = screen_speeds(table, cfg)
     table["speed_kmh"], table["speed_basis"], table["speed_reason"] = resolve_speeds(table, cfg)
+    extra_notes = speed_notes(table, found, cfg)
+    evidence["roads_at_substituted_speeds"] = int(len(extra_notes) - extra_notes["detail"].str.contains(
+        "road skipped").sum()) if len(extra_notes) else 0
     net_junctions = network_junction_points(roads, cfg)
     timings["ingest"] = time.perf_counter() - t0
 
@@ -402,7 +416,8 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
             roads.notes.append(f"ground points for {len(unknown)} road id(s) not in the roads file ignored "
                                f"(e.g. {unknown[0]!r})")
     result = NetworkResult(roads=roads, work=work, timings=timings, ground_info=ground_info,
-                           notes=roads.notes + sampler_notes, criteria=cset, step_m=cfg["profile.step_m"],
+                           notes=roads.notes + evidence["notes"] + sampler_notes, criteria=cset,
+                           step_m=cfg["profile.step_m"], evidence=evidence, extra_notes=extra_notes,
                            chunks={"total": len(chunks), "computed": len(todo), "reused": len(chunks) - len(todo),
                                    "workers": _workers(cfg), "engine": cfg["run.engine"]})
     if owner is not None:
@@ -589,7 +604,9 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
                 "ground": {"sha256": file_sha256(ground_path)} | result.ground_info,
             },
             "working_crs": {k: v.name for k, v in result.roads.work_crs.items()},
-            "roads": accounting(result),
+            "roads": accounting(result) | {
+                "judged_at_substituted_speeds": result.evidence.get("roads_at_substituted_speeds", 0)},
+            "evidence": result.evidence,
             "criteria": {k: result.criteria.params[k] for k in ("name", "title", "source", "edition", "units")},
             "units": _units_info(cfg),
             "hazard_stretches": int((result.evaluation.inventory["hidden_hazard"] != "none").sum()),

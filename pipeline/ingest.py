@@ -345,6 +345,9 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
             f"{path}: no column {id_col!r} for the road identifier "
             f"(columns: {', '.join(map(str, frame.columns[:12]))}); set roads.id_column or --id-column"
         )
+    from .evidence import check_road_columns
+
+    column_notes = check_road_columns([c for c in frame.columns if c != "geometry"], cfg, path)
     if crs is None:
         raise InputError(f"{path}: no CRS in the file; state it with roads.crs or --roads-crs (e.g. EPSG:32633)")
     if not (crs.is_geographic or crs.is_projected):
@@ -384,6 +387,7 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
         keys[present] = [working_crs_key(crs, a, b) for a, b in zip(shapely.get_x(cent), shapely.get_y(cent))]
     table["source_id"] = source_ids
     roads = Roads(path=path, table=table, source_crs=crs)
+    roads.notes += column_notes
     if geometry_column:
         roads.notes.append(f"{path.name}: centrelines read as WKT from column {geometry_column!r}")
     for orig, renamed in duplicated:
@@ -463,6 +467,7 @@ class PointGround:
     arrays: dict[str, np.ndarray]
     groups: dict[str, tuple[int, int]]
     kind: str = "points"
+    crs_assumed: bool = False  # no CRS stated: taken as the roads' CRS
 
     def points(self, road_id: str) -> dict[str, np.ndarray] | None:
         span = self.groups.get(road_id)
@@ -594,9 +599,10 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
     else:
         raise InputError(f"{path}: ground points need columns x, y (or a point geometry) or chainage_m")
     del frame
+    crs_assumed = False
     if mode == "xy":
         if crs is None:
-            crs = roads.source_crs
+            crs, crs_assumed = roads.source_crs, True
             roads.notes.append(f"{path.name}: no CRS stated for ground points; taken as the roads' CRS")
     order = np.argsort(codes, kind="stable")[np.count_nonzero(~keep):]  # rows without an id go first: dropped
     sorted_codes = codes[order]
@@ -604,7 +610,8 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
     stops = np.searchsorted(sorted_codes, np.arange(len(uniques)), side="right")
     arrays = {c: np.asarray(v, dtype=float)[order] for c, v in cols.items()}
     groups = {u: (int(a), int(b)) for u, a, b in zip(unique_ids, starts, stops)}
-    return PointGround(path=path, crs=crs, mode=mode, rows=int(len(order)), arrays=arrays, groups=groups)
+    return PointGround(path=path, crs=crs, mode=mode, rows=int(len(order)), arrays=arrays, groups=groups,
+                       crs_assumed=crs_assumed)
 
 
 

@@ -358,6 +358,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     cards = [("length audited", f"{dist:,.1f} {units.distance_label}"),
              ("roads evaluated", f"{r['evaluated']} of {r['in']}"),
              ("roads skipped", f"{r['skipped']}"),
+             ("at substituted speeds", f"{r.get('judged_at_substituted_speeds', 0)}"),
              ("vertical curves", f"{len(curves)}"),
              ("deficient curves", f"{deficient_curves}"),
              ("deficient stretches", f"{len(inv)}"),
@@ -365,6 +366,10 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
              ("hiding a hazard", f"{int((inv['hidden_hazard'] != 'none').sum()) if len(inv) else 0}")]
     parts += [f"<div class='card'><b class='figure' data-name='{_e(k)}'>{_e(v)}</b>{_e(k)}</div>" for k, v in cards]
     parts.append("</div>")
+    overridden = summary.get("evidence", {}).get("overridden", [])
+    if overridden:
+        parts.append(f"<p class='caution'>Checks on the inputs overridden by the settings (checks.override): "
+                     f"{_e(', '.join(overridden))}; see the data notes.</p>")
     parts.append(f"<p>Deficient length (each direction counted): minor {sev_km['minor']:.2f}, moderate "
                  f"{sev_km['moderate']:.2f}, severe {sev_km['severe']:.2f} {units.distance_label}.</p>")
     by_class = units.table(ev.summary)

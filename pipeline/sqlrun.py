@@ -40,7 +40,8 @@ def write_parquet_from(relation, path) -> None:
     DuckDB releases refuse)."""
     import pyarrow.parquet as pq
 
-    reader = relation.fetch_record_batch()
+    reader = (relation.to_arrow_reader() if hasattr(relation, "to_arrow_reader")  # newer DuckDB
+              else relation.fetch_record_batch())
     with pq.ParquetWriter(str(path), reader.schema) as writer:
         for batch in reader:
             writer.write_batch(batch)
