@@ -618,7 +618,7 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
             "caution": CAUTION,
         }
         with progress.stage("writing outputs"):
-            write_outputs(tmp, result, summary, cfg, pool)
+            summary["output_failures"] = write_outputs(tmp, result, summary, cfg, pool)
         result.timings["export"] = time.perf_counter() - t0
         finished = datetime.now(timezone.utc)
         summary["finished_utc"] = finished.isoformat(timespec="seconds")

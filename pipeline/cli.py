@@ -206,6 +206,11 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:],
                         resume=getattr(args, "resume", False))
     _print_summary(summary, out, args.quiet)
+    failed = summary.get("output_failures") or []
+    if failed:
+        print(f"sightaudit: error: not written: " + "; ".join(f"{f['output']} ({f['error']})" for f in failed)
+              + f"; the data outputs in {out} are complete, run.json records the failure", file=sys.stderr)
+        return 1
     return 0
 
 

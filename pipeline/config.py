@@ -117,7 +117,7 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "override": ([], "checks on the inputs to override, each reported in run.json and the report: "
                          "'speed_unit', 'elevation_unit', 'coverage', 'grades'"),
         "min_coverage_pct": (50.0, "a run stops when the ground data cover less of the road length than this (%)"),
-        "max_steep_pct": (10.0, "a run stops when more of the road length than this is steeper than "
+        "max_steep_pct": (25.0, "a run stops when more of the road length than this is steeper than "
                                 "artefacts.max_road_grade_pct: usually a wrong elevation unit (%)"),
     },
     "inventory": {

@@ -372,17 +372,32 @@ CAUTION_TEXT = ("Screening results only. Every finding must be confirmed by fiel
                 "used here.")
 
 
-def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> None:
+def _failure(what: str, exc: BaseException) -> dict:
+    return {"output": what, "error": f"{type(exc).__name__}: {' '.join(str(exc).split())[:200]}"}
+
+
+def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> list[dict]:
     """Every output file of the run, into ``folder``, in the run's units. With a process
-    ``pool``, the report's figures are drawn there while the tables are written here."""
+    ``pool``, the report's figures are drawn there while the tables are written here.
+
+    The data outputs (CSV, workbook, GeoPackage, Parquet) are written first and a fault in them
+    stops the run. The report, its figures and the PDF come after: a fault there is caught and
+    returned (``[{"output", "error"}]``, recorded in ``run.json``), the output at fault is left
+    out rather than left half-written, and one curve's figure failing gives a placeholder on
+    its page instead of losing the report."""
     from .report import build_report, curve_png, network_map, png_data_uri, report_pages, write_profiles_pdf
     from .units import OutputUnits
 
+    failures: list[dict] = []
     units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
-    pages = report_pages(result, cfg, units)
+    try:
+        pages = report_pages(result, cfg, units)
+    except Exception as exc:  # the report is lost, the data are not
+        pages = None
+        failures.append(_failure("report.html", exc))
     # drawing in the pool pays when its processes are already running or the pages are many
     warm = result.chunks.get("computed", 0) > 1
-    use_pool = pool is not None and (warm or len(pages) >= 25)
+    use_pool = pool is not None and pages is not None and (warm or len(pages) >= 25)
     futures = [pool.submit(curve_png, p["spec"]) for p in pages] if use_pool else None
     ev = result.evaluation
     curves = curves_table(ev.curves)
@@ -415,9 +430,32 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> None:
                 "Horizontal curves": out["hcurves"], "Roads": out["roads"], "Data notes": out["notes"]},
                method, summary_lines, units)
     write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves, units)
-    map_png = png_data_uri(network_map(result, ev.inventory, units))
-    pngs = [f.result() for f in futures] if futures is not None else None
-    (folder / "report.html").write_text(build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs,
-                                                     map_png), encoding="utf-8")
+
+    # the extra outputs: a fault here loses that output only
+    if pages is not None:
+        try:
+            map_png = png_data_uri(network_map(result, ev.inventory, units))
+        except Exception as exc:
+            map_png = ""  # a placeholder in the report
+            failures.append(_failure("report.html overview map", exc))
+        pngs = []
+        for i, page in enumerate(pages):
+            try:
+                pngs.append(futures[i].result() if futures is not None else curve_png(page["spec"]))
+            except Exception as exc:
+                pngs.append(None)  # a placeholder on that page
+                failures.append(_failure(f"report.html figure of road {page['road_id']} curve {page['curve_no']}",
+                                         exc))
+        try:
+            html_text = build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_png)
+            (folder / "report.html").write_text(html_text, encoding="utf-8")
+        except Exception as exc:
+            (folder / "report.html").unlink(missing_ok=True)
+            failures.append(_failure("report.html", exc))
     if cfg["output.profiles_pdf"]:
-        write_profiles_pdf(folder / "profiles.pdf", result, units)
+        try:
+            write_profiles_pdf(folder / "profiles.pdf", result, units)
+        except Exception as exc:
+            (folder / "profiles.pdf").unlink(missing_ok=True)
+            failures.append(_failure("profiles.pdf", exc))
+    return failures

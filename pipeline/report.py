@@ -265,6 +265,10 @@ LOADED_JS = """window.addEventListener('load', function () {
 });"""
 
 
+FIGURE_MISSING = ("<p class='caution figure-missing'>{what} could not be drawn; the failure is recorded in "
+                  "run.json (output_failures). The data files (CSV, workbook, GeoPackage) are complete.</p>")
+
+
 def _e(v) -> str:
     if v is None or (isinstance(v, float) and not np.isfinite(v)):
         return ""
@@ -378,9 +382,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
 
     # --- map
     parts.append("<h2 id='map'>Network overview</h2>")
-    map_png = map_png or png_data_uri(network_map(result, inv, units))
+    map_png = png_data_uri(network_map(result, inv, units)) if map_png is None else map_png
     parts.append(f"<img alt='Map of the audited roads with deficient stretches coloured by severity' "
-                 f"src='{map_png}'>")
+                 f"src='{map_png}'>" if map_png else FIGURE_MISSING.format(what="The overview map"))
 
     # --- inventory
     parts.append("<h2 id='inventory'>Ranked inventory (top 50)</h2>")
@@ -429,7 +433,8 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
         ]
         ft = "".join(f"<tr><td>{_e(k)}</td><td>{v}</td></tr>" for k, v in facts)
         parts.append(f"<section class='curve sev-{_e(worst['severity'])}'><h3>{_e(title)}</h3>"
-                     f"<img alt='Long profile of {_e(rid)} curve {cno}' src='{png}'>"
+                     + (f"<img alt='Long profile of {_e(rid)} curve {cno}' src='{png}'>" if png
+                        else FIGURE_MISSING.format(what="This curve's long profile")) +
                      f"<table class='facts'>{ft}</table></section>")
 
     # --- method
