@@ -134,7 +134,8 @@ COLUMN_NOTES = {
     "to_m": "end of the deficient stretch (m)",
     "shortfall_m": "required SSD minus available sight distance (m)",
     "aadt": "annual average daily traffic (vehicles/day)",
-    "priority_score": "0-100, higher first; formula in the Method sheet and the README",
+    "priority_score": "higher first (0-100, plus 100 x hazard weight where the crest hides a hazard); formula "
+                      "in the Method sheet",
     "severity": "minor / moderate / severe by the speed gap",
     "speed_gap_kmh": "road speed minus supported speed (km/h)",
     "stretch_length_m": "length of the deficient stretch (m)",
@@ -166,6 +167,21 @@ COLUMN_NOTES = {
     "reason": "why the road was skipped",
     "length_m_road": "road length (m)",
 }
+
+
+def priority_formula(cfg) -> str:
+    """The priority score's formula with the run's weights, written once: the inventory SQL
+    computes exactly this (``sql/inventory.sql``), and the report, the workbook's Method sheet and
+    the header note of ``priority_score`` all show this text."""
+    w, h = cfg["inventory.priority_weights"], cfg["inventory.hazard_weight"]
+    return (f"priority_score = 100 * {h:g} * hidden + 100 * ({w['shortfall']:g} * f_shortfall + {w['speed']:g} * "
+            f"f_speed + {w['exposure']:g} * f_exposure) / {sum(w.values()):g}")
+
+
+def priority_terms(cfg) -> str:
+    return ("hidden = 1 where the crest hides a hazard (hidden_hazard not 'none'), else 0; f_shortfall = shortfall / "
+            "required SSD; f_speed = (speed judged at - supported speed) / 50 km/h; f_exposure = ln(1 + AADT) / "
+            f"ln(1 + {cfg['inventory.aadt_ref']:g}), 0 where AADT is unknown; each factor at most 1")
 
 
 def column_note(col: str, units=None) -> str | None:
@@ -218,7 +234,7 @@ def deficiencies_table(inventory: pd.DataFrame) -> pd.DataFrame:
 
 
 def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[tuple[str, str]],
-               summary_lines: list[tuple[str, str]], units=None) -> None:
+               summary_lines: list[tuple[str, str]], units=None, notes: dict[str, str] | None = None) -> None:
     """A workbook for the asset-management spreadsheet: a summary sheet, one sheet per table
     (frozen header row, column widths to fit, a note on each header cell saying what it holds
     and its unit) and a method sheet with the criteria set's source and the cautions."""
@@ -258,7 +274,7 @@ def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[t
         sh = wb.add_worksheet(name)
         for j, col in enumerate(frame.columns):
             sh.write(0, j, col, head)
-            note = column_note(col, units)
+            note = (notes or {}).get(col) or column_note(col, units)
             if note:
                 sh.write_comment(0, j, note, {"x_scale": 2})
             values = frame[col]
@@ -334,7 +350,6 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
 
 def method_lines(result, cfg) -> list[tuple[str, str]]:
     c = result.criteria.params
-    w = cfg["inventory.priority_weights"]
     bands = cfg["inventory.severity_bands_kmh"]
     return [
         ("Caution", CAUTION_TEXT),
@@ -360,10 +375,7 @@ def method_lines(result, cfg) -> list[tuple[str, str]]:
                       "K below the table is reported separately (k_below_table)"),
         ("Severity", f"speed gap below {bands[0]:g} km/h minor, {bands[0]:g}-{bands[1]:g} moderate, "
                      f"over {bands[1]:g} severe"),
-        ("Priority score", f"100 x ({w['shortfall']:g} f_shortfall + {w['speed']:g} f_speed + "
-                           f"{w['exposure']:g} f_exposure) / {sum(w.values()):g}; f_shortfall = shortfall / "
-                           f"required SSD, f_speed = speed gap / 50 km/h, f_exposure = ln(1 + AADT) / "
-                           f"ln(1 + {cfg['inventory.aadt_ref']:g}), each at most 1"),
+        ("Priority score", f"{priority_formula(cfg)}; {priority_terms(cfg)}"),
     ]
 
 
@@ -428,7 +440,8 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> list[d
     write_xlsx(folder / "deficiencies.xlsx",
                {"_summary": out["summary"], "Deficiencies": out["deficiencies"], "Curves": out["curves"],
                 "Horizontal curves": out["hcurves"], "Roads": out["roads"], "Data notes": out["notes"]},
-               method, summary_lines, units)
+               method, summary_lines, units,
+               notes={"priority_score": f"higher first: {priority_formula(cfg)}; {priority_terms(cfg)}"})
     write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves, units)
 
     # the extra outputs: a fault here loses that output only
