@@ -206,6 +206,7 @@ def build(out_dir: Path = HERE) -> dict:
                        tiled=True, blockxsize=256, blockysize=256) as dst:
         dst.write(dem, 1)
         dst.update_tags(DESCRIPTION="Wendle Vale corridor DEM (invented sample data), metres")
+        dst.units = ("metre",)  # the elevation unit, stated in the file (sightaudit reads it)
 
     # roads layer
     geoms = []

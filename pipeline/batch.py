@@ -59,8 +59,10 @@ def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.nda
     speed (station by station; the road's figure is then the desired speed, the ceiling);
     otherwise the road is skipped. With ``speed.source = "predicted"`` every road is judged at
     predicted speeds."""
+    from .evidence import speed_unit
+
     raw = table["speed_raw"].to_numpy(dtype=float)
-    if cfg["output.units"] == "us":  # the speed column is in mph
+    if speed_unit(cfg) == "mph":  # the speed column is in mph
         from .units import kmh_per_mph
 
         raw = raw * kmh_per_mph()
@@ -147,8 +149,9 @@ class WorkFolder:
     def meta(self, k: int) -> dict:
         return json.loads((self.chunk(k) / "done.json").read_text())
 
-    def glob(self, name: str) -> str:
-        return str(self.path / "chunk_*" / f"{name}.parquet")
+    def files(self, name: str) -> list[str]:
+        """The chunk files of table ``name`` (a list: paths never go into SQL text)."""
+        return sorted(str(p) for p in self.path.glob(f"chunk_*/{name}.parquet"))
 
 
 def chunk_folder(work_path: Path, k: int) -> Path:
@@ -247,11 +250,17 @@ class NetworkResult:
     evaluation: object = None
     step_m: float = 5.0
     chunks: dict = field(default_factory=dict)
+    evidence: dict = field(default_factory=dict)  # what the inputs say (pipeline.evidence)
+    extra_notes: pd.DataFrame | None = None  # per-road notes made before the chunks (substituted speeds)
 
-    def _read(self, name: str, where: str = "", order: str = "") -> pd.DataFrame:
-        sql = f"SELECT * FROM read_parquet('{self.work.glob(name)}', union_by_name = true) {where} {order}"
+    def _read(self, name: str) -> pd.DataFrame:
+        from .sqlrun import parquet_relation
+
+        files = self.work.files(name)
+        if not files:
+            return _typed(name, None)
         with duckdb.connect() as con:
-            frame = con.sql(sql).df()
+            frame = parquet_relation(con, files).df()
         return frame if len(frame) else _typed(name, None)
 
     def _order(self, frame: pd.DataFrame, by: list[str]) -> pd.DataFrame:
@@ -272,10 +281,12 @@ class NetworkResult:
         ids = sorted({str(r) for r in road_ids})
         if not ids:
             return {}
+        from .sqlrun import parquet_view
+
         with duckdb.connect() as con:
             con.register("wanted", pd.DataFrame({"road_id": ids}))
-            frame = con.sql(f"SELECT p.* FROM read_parquet('{self.work.glob('profiles')}', union_by_name = true) p "
-                            f"JOIN wanted USING (road_id) ORDER BY road_id, chainage_m").df()
+            parquet_view(con, "stations", self.work.files("profiles"))
+            frame = con.sql("SELECT p.* FROM stations p JOIN wanted USING (road_id) ORDER BY road_id, chainage_m").df()
         return {rid: g.reset_index(drop=True) for rid, g in frame.groupby("road_id", sort=False)}
 
     @property
@@ -315,7 +326,10 @@ class NetworkResult:
         })
 
     def data_notes(self) -> pd.DataFrame:
-        return self._order(self._read("notes"), [])
+        notes = self._read("notes")
+        if self.extra_notes is not None and len(self.extra_notes):
+            notes = pd.concat([self.extra_notes.astype(notes.dtypes.to_dict()), notes], ignore_index=True)
+        return self._order(notes, [])
 
 
 # ------------------------------------------------------------------- the run
@@ -359,9 +373,16 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
                       if cfg["structures.file"] else None)
         junction_layer = (read_features(cfg["junctions.file"], cfg, roads, "junctions", cfg["junctions.layer"])
                           if cfg["junctions.file"] else None)
+        from .evidence import examine, screen_speeds, speed_notes
+
+        evidence = examine(roads, ground, cfg)
         tick()
     table = roads.table
+    found = screen_speeds(table, cfg)
     table["speed_kmh"], table["speed_basis"], table["speed_reason"] = resolve_speeds(table, cfg)
+    extra_notes = speed_notes(table, found, cfg)
+    evidence["roads_at_substituted_speeds"] = int(len(extra_notes) - extra_notes["detail"].str.contains(
+        "road skipped").sum()) if len(extra_notes) else 0
     net_junctions = network_junction_points(roads, cfg)
     timings["ingest"] = time.perf_counter() - t0
 
@@ -402,15 +423,16 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
             roads.notes.append(f"ground points for {len(unknown)} road id(s) not in the roads file ignored "
                                f"(e.g. {unknown[0]!r})")
     result = NetworkResult(roads=roads, work=work, timings=timings, ground_info=ground_info,
-                           notes=roads.notes + sampler_notes, criteria=cset, step_m=cfg["profile.step_m"],
+                           notes=roads.notes + evidence["notes"] + sampler_notes, criteria=cset,
+                           step_m=cfg["profile.step_m"], evidence=evidence, extra_notes=extra_notes,
                            chunks={"total": len(chunks), "computed": len(todo), "reused": len(chunks) - len(todo),
                                    "workers": _workers(cfg), "engine": cfg["run.engine"]})
     if owner is not None:
         weakref.finalize(result, shutil.rmtree, owner, True)
     t0 = time.perf_counter()
     with progress.stage("judging curves (DuckDB)") as tick:
-        result.evaluation = evaluate(result.road_table(), work.glob("profiles"), result.curves,
-                                     work.glob("keypoints"), result.hazards, cset, cfg)
+        result.evaluation = evaluate(result.road_table(), work.files("profiles"), result.curves,
+                                     work.files("keypoints"), result.hazards, cset, cfg)
         tick()
     timings["evaluate"] = time.perf_counter() - t0
     return result
@@ -541,12 +563,12 @@ def accounting(result: NetworkResult) -> dict:
 
 def network_summary(result: NetworkResult) -> pd.DataFrame:
     """Roads and km in and evaluated, and ground coverage, by road class (``sql/network_summary.sql``)."""
-    from .sqlrun import sql_text
+    from .sqlrun import parquet_relation, sql_text
 
     with duckdb.connect() as con:
         con.register("roads", result.road_table())
-        con.sql(f"CREATE VIEW stations AS SELECT road_id, chainage_m, ground_flag "
-                f"FROM read_parquet('{result.work.glob('profiles')}', union_by_name = true)")
+        parquet_relation(con, result.work.files("profiles")).project(
+            "road_id, chainage_m, ground_flag").create_view("stations")
         return con.sql(sql_text("network_summary")).df()
 
 
@@ -590,7 +612,9 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
                 "ground": {"sha256": file_sha256(ground_path)} | result.ground_info,
             },
             "working_crs": {k: v.name for k, v in result.roads.work_crs.items()},
-            "roads": accounting(result),
+            "roads": accounting(result) | {
+                "judged_at_substituted_speeds": result.evidence.get("roads_at_substituted_speeds", 0)},
+            "evidence": result.evidence,
             "criteria": {k: result.criteria.params[k] for k in ("name", "title", "source", "edition", "units")},
             "units": _units_info(cfg),
             "hazard_stretches": int((result.evaluation.inventory["hidden_hazard"] != "none").sum()),
@@ -605,7 +629,7 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
             "caution": CAUTION,
         }
         with progress.stage("writing outputs"):
-            write_outputs(tmp, result, summary, cfg, pool)
+            summary["output_failures"] = write_outputs(tmp, result, summary, cfg, pool)
         result.timings["export"] = time.perf_counter() - t0
         finished = datetime.now(timezone.utc)
         summary["finished_utc"] = finished.isoformat(timespec="seconds")

@@ -12,16 +12,17 @@ import numpy as np
 from .config import Config
 
 
-def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25.0) -> dict:
+def check_inputs(roads_path, ground_path, cfg: Config) -> dict:
     """What a run would find in the inputs. File-level faults raise ``InputError`` as in a run."""
     from .batch import resolve_speeds
-    from .roadwork import GroundSampler
+    from .evidence import examine, screen_speeds
     from .ingest import DemGround, open_ground, read_roads
-    from .profile import station_chainages
 
     roads = read_roads(roads_path, cfg)
     ground = open_ground(ground_path, cfg, roads)
     t = roads.table
+    evidence = examine(roads, ground, cfg, strict=False)
+    found = screen_speeds(t, cfg)
     speed, basis, reason = resolve_speeds(t, cfg)
     ok = t["skip_reason"].isna() | ~t["skip_reason"].map(lambda v: isinstance(v, str))
     lengths = t.loc[ok, "length_m"].to_numpy(dtype=float)
@@ -32,27 +33,15 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
     for rid, why in zip(t["road_id"], reason):
         if isinstance(why, str):
             problems.append(f"road {rid}: {why} (would be skipped)")
-    problems += roads.notes
-
-    # ground coverage: stations every sample_step_m on every usable road
-    sampler = GroundSampler(ground, roads.work_crs, cfg)
-    covered = total = 0.0
-    no_ground = []
-    spacing: list = []
-    sub = cfg.copy_with({"profile.step_m": sample_step_m})
-    sampler.cfg = sub
-    for _, row in t[ok].iterrows():
-        st = station_chainages(row["length_m"], sample_step_m)
-        z, _, _, extra = sampler.sample(row["geometry"], row["work_key"], row["source_id"], st)
-        spacing.append(extra["cell_m"] if extra["cell_m"] is not None else extra["spacing_m"])
-        have = np.isfinite(z)
-        covered += have.sum() * sample_step_m
-        total += len(st) * sample_step_m
-        if not have.any():
-            no_ground.append(row["road_id"])
+    problems += roads.notes + evidence["notes"]
+    substituted = 0
+    for rid, f, b in zip(t["road_id"], found, basis):
+        if f is not None and isinstance(b, str) and cfg["speed.source"] == "attribute":
+            substituted += 1
+            problems.append(f"road {rid}: found {f}; would be judged at a substituted speed ({b})")
+    no_ground = [r for r in evidence.pop("roads_without_ground_ids", [])]
     for rid in no_ground:
         problems.append(f"road {rid}: no ground data along it (would be skipped)")
-    problems += sampler.notes
     kinds: dict[str, int] = {}
     for b in basis:
         if isinstance(b, str):
@@ -72,9 +61,16 @@ def check_inputs(roads_path, ground_path, cfg: Config, sample_step_m: float = 25
         "speed": {k: v for k, v in kinds.items() if v},
         "ground_file": str(ground.path),
         "ground": ground.describe(),
-        "ground_coverage_pct": 100.0 * covered / total if total else 0.0,
+        "ground_coverage_pct": evidence["coverage_pct"],
+        "grade_pct": evidence["grade_pct"],
+        "steep_pct": evidence["steep_pct"],
+        "elevation_unit": f"{evidence['elevation_unit']} ({evidence['elevation_unit_source']})",
         "problems": problems,
-        "data_quality": _data_support(ground, spacing, cfg),
+        "data_quality": _data_support(ground, [evidence["ground_spacing_m"]], cfg),
+        "refusals": evidence["refusals"],
+        "substituted_speeds": substituted,
+        "would_skip": len({r for r, a, b in zip(t["road_id"], t["skip_reason"], reason)
+                           if isinstance(a, str) or isinstance(b, str)} | set(no_ground)),
     }
     if isinstance(ground, DemGround):
         import rasterio
@@ -89,15 +85,15 @@ def _data_support(ground, spacing: list, cfg: Config) -> dict:
     """What the ground data can support, before a run (:mod:`pipeline.quality`): their own
     spacing (DEM cell, or ground points' median spacing), the shortest feature a profile at the
     run's station step resolves, and what they cannot judge."""
-    from .corridor import resolution_length_m
+    from .corridor import MAX_FILTER_CELLS, resolution_length_m
     from .quality import cannot_judge
 
     kind = "dem" if getattr(ground, "kind", "") == "dem" else "points"
     v = np.array([x for x in spacing if x is not None and np.isfinite(x)], dtype=float)
     own = float(np.median(v)) if len(v) else None
-    # a coarse DEM's profile is also filtered over up to six cells (pipeline.corridor); the run
-    # measures the filter road by road, here the worst case is assumed
-    filt = 6.0 * own if (kind == "dem" and own is not None and own > cfg["profile.corridor_max_cell_m"]) else 0.0
+    # a coarse DEM's profile is also filtered over up to MAX_FILTER_CELLS cells along each grid
+    # axis (pipeline.corridor); the run measures the filter road by road, here the worst case
+    filt = np.hypot(MAX_FILTER_CELLS, 1.0) * own if (kind == "dem" and own is not None and own > cfg["profile.corridor_max_cell_m"]) else 0.0
     res = resolution_length_m(own if kind == "dem" else None, own if kind == "points" else None,
                               cfg["profile.step_m"], filt) if own is not None else None
     return {"ground_kind": kind, "spacing_m": own, "resolution_m": res,

@@ -168,6 +168,7 @@ def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
     rows = [
         ("Roads", f"{r['in']} in, {r['evaluated']} evaluated, {r['skipped']} skipped"),
         ("Length audited", dist(net.get("km_audited"))),
+        ("Substituted speeds", f"{r.get('judged_at_substituted_speeds', 0)} road(s) (see data_notes.csv)"),
         ("Vertical curves", f"{int(net.get('curves') or 0)} ({int(net.get('crests') or 0)} crests, "
                             f"{int(net.get('sags') or 0)} sags)"),
         ("Deficient curves", f"{int(net.get('deficient_curves') or 0)}"),
@@ -205,6 +206,11 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:],
                         resume=getattr(args, "resume", False))
     _print_summary(summary, out, args.quiet)
+    failed = summary.get("output_failures") or []
+    if failed:
+        print(f"sightaudit: error: not written: " + "; ".join(f"{f['output']} ({f['error']})" for f in failed)
+              + f"; the data outputs in {out} are complete, run.json records the failure", file=sys.stderr)
+        return 1
     return 0
 
 
@@ -240,7 +246,13 @@ def _validate(args) -> int:
               f"{g['size'][0]} x {g['size'][1]} cells, nodata {g['nodata']}")
     else:
         print(f"         ground points ({g['mode']}), {g['rows']} rows")
-    print(f"         ground data cover {info['ground_coverage_pct']:.1f} % of the road length")
+    print(f"         ground data cover {info['ground_coverage_pct']:.1f} % of the road length; elevations in "
+          f"{info['elevation_unit']}")
+    gp = info["grade_pct"]
+    if gp:
+        print(f"         grades over 25 m: median {gp['p50']:.1f} %, 90th percentile {gp['p90']:.1f} %, 99th "
+              f"{gp['p99']:.1f} %; {info['steep_pct']:.1f} % of the length steeper than "
+              f"{cfg['artefacts.max_road_grade_pct']:g} %")
     dq = info["data_quality"]
     if dq["resolution_m"] is not None:
         own = "DEM cells" if dq["ground_kind"] == "dem" else "ground points every"
@@ -254,6 +266,19 @@ def _validate(args) -> int:
             print(f"  - {p}")
     else:
         print("Problems: none found")
+    if info["refusals"]:
+        for r in info["refusals"]:
+            print(f"sightaudit: error: {r}", file=sys.stderr)
+        print("The inputs cannot be audited as they are: a run would stop (see the error).")
+        return 2
+    if info["would_skip"] >= info["roads"]:
+        print("sightaudit: error: a run would skip every road (see Problems); fix the inputs", file=sys.stderr)
+        print("The inputs cannot be audited as they are: every road would be skipped.")
+        return 2
+    if info["substituted_speeds"]:
+        print(f"A run would go ahead, but {info['substituted_speeds']} road(s) would be judged at substituted "
+              f"speeds (listed above); fill in their speeds for a trustworthy verdict.")
+        return 0
     print("The inputs can be audited: sightaudit run --roads ... --ground ... --out DIR")
     return 0
 

@@ -29,6 +29,8 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "layer": ("", "GeoPackage layer with the centrelines; empty = the only layer, or 'roads'"),
         "wkt_column": ("wkt", "CSV only: column with the centreline as WKT"),
         "crs": ("", "CRS of the roads file when it has none (CSV), e.g. 'EPSG:32633'"),
+        "speed_unit": ("", "unit of the speed column: 'kmh' or 'mph'; empty = that of output.units (a column "
+                           "name ending in the other unit then stops the run)"),
         "join_tolerance_m": (0.5, "largest gap between parts of a multi-part road that is still joined (m)"),
     },
     "ground": {
@@ -132,6 +134,13 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "fine_resolution_m": (4.0, "ground data resolving features this short (m) count as survey-grade in the "
                                    "advice given with undetermined verdicts"),
     },
+    "checks": {
+        "override": ([], "checks on the inputs to override, each reported in run.json and the report: "
+                         "'speed_unit', 'elevation_unit', 'coverage', 'grades'"),
+        "min_coverage_pct": (50.0, "a run stops when the ground data cover less of the road length than this (%)"),
+        "max_steep_pct": (25.0, "a run stops when more of the road length than this is steeper than "
+                                "artefacts.max_road_grade_pct: usually a wrong elevation unit (%)"),
+    },
     "inventory": {
         "severity_bands_kmh": ([10.0, 20.0], "speed gaps (km/h) separating minor, moderate and severe deficiencies"),
         "priority_weights": ({"shortfall": 1.0, "speed": 1.0, "exposure": 1.0},
@@ -220,6 +229,16 @@ def _check_value(key: str, value: Any, source: str) -> None:
         bad("must not be negative")
     elif key == "ground.elevation_unit" and value not in ("m", "ft", "us_ft"):
         bad("must be 'm', 'ft' (international foot) or 'us_ft' (US survey foot)")
+    elif key == "roads.speed_unit" and value not in ("", "kmh", "mph"):
+        bad("must be 'kmh' or 'mph' (or empty: that of output.units)")
+    elif key == "checks.override":
+        from .evidence import CHECKS
+
+        unknown = [v for v in value if v not in CHECKS]
+        if unknown:
+            bad(f"has unknown check(s) {', '.join(map(str, unknown))}; use {', '.join(CHECKS)}")
+    elif key in ("checks.min_coverage_pct", "checks.max_steep_pct") and not 0 <= value <= 100:
+        bad("must be between 0 and 100 (%)")
     elif key == "speed.source" and value not in ("attribute", "predicted"):
         bad("must be 'attribute' or 'predicted'")
     elif key == "plan.e_max_pct" and not 0 <= value <= 20:

@@ -113,8 +113,11 @@ def crossing_periods(heading_rad: np.ndarray, cell_m: float, max_m: float) -> tu
     return p1, p2
 
 
+MAX_FILTER_CELLS = 3.0  # longest cell-crossing filter, in cells
+
+
 def cell_crossing_filter(chain_m: np.ndarray, z_m: np.ndarray, heading_rad: np.ndarray, cell_m: float,
-                         max_factor: float = 3.0) -> tuple[np.ndarray, np.ndarray]:
+                         max_factor: float = MAX_FILTER_CELLS) -> tuple[np.ndarray, np.ndarray]:
     """Remove the ripple of bilinear samples of cell means along a road crossing the grid.
 
     Two running means (:func:`running_mean`) whose lengths are the local crossing periods

@@ -50,8 +50,10 @@ def params_table(cfg: Config) -> pd.DataFrame:
 def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, hazards: pd.DataFrame,
              cset: CriteriaSet, cfg: Config) -> Evaluation:
     """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the columns
-    each table needs). ``profiles`` and ``keypoints`` may be DataFrames or Parquet file patterns,
+    each table needs). ``profiles`` and ``keypoints`` may be DataFrames or lists of Parquet files,
     which DuckDB reads as it goes without loading them whole."""
+    from .sqlrun import parquet_view
+
     set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
     con = duckdb.connect()
     try:
@@ -59,8 +61,8 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
                   "hazards": hazards, "cset": set_row,
                   "cspeeds": cset.table, "params": params_table(cfg)}
         for name, frame in tables.items():
-            if isinstance(frame, str):
-                con.sql(f"CREATE VIEW {name} AS SELECT * FROM read_parquet('{frame}', union_by_name = true)")
+            if isinstance(frame, (str, list, tuple)):
+                parquet_view(con, name, frame)
             else:
                 con.register(name, frame)
         for name in ("criteria_macros", "evaluate", "inventory"):

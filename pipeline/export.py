@@ -70,17 +70,17 @@ def write_profiles_from_work(path: Path, result, units) -> None:
     stations are never all in memory), in road order then chainage, in the run's units."""
     import duckdb
 
-    glob = result.work.glob("profiles")
+    from .sqlrun import parquet_view, write_parquet_from
+
     with duckdb.connect() as con:
-        cols = [r[0] for r in con.sql(f"DESCRIBE SELECT * FROM read_parquet('{glob}', union_by_name = true)")
-                .fetchall()]
+        parquet_view(con, "stations", result.work.files("profiles"))
+        cols = [r[0] for r in con.sql("DESCRIBE SELECT * FROM stations").fetchall()]
         exprs = [f'"{c}" / {units.divisor(c)!r} AS "{units.column(c)}"' if units.divisor(c) != 1.0 else f'"{c}"'
                  for c in cols]
         con.register("road_order", pd.DataFrame({"road_id": result.roads.table["road_id"],
                                                  "_order": np.arange(len(result.roads.table))}))
-        con.sql(f"COPY (SELECT {', '.join(exprs)} FROM read_parquet('{glob}', union_by_name = true) p "
-                f"JOIN road_order USING (road_id) ORDER BY _order, chainage_m) "
-                f"TO '{path}' (FORMAT parquet)")
+        write_parquet_from(con.sql(f"SELECT {', '.join(exprs)} FROM stations p "
+                                   f"JOIN road_order USING (road_id) ORDER BY _order, chainage_m"), path)
 
 
 CURVE_CONTRACT = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",
@@ -151,7 +151,8 @@ COLUMN_NOTES = {
     "to_m": "end of the deficient stretch (m)",
     "shortfall_m": "required SSD minus available sight distance (m)",
     "aadt": "annual average daily traffic (vehicles/day)",
-    "priority_score": "0-100, higher first; formula in the Method sheet and the README",
+    "priority_score": "higher first (0-100, plus 100 x hazard weight where the crest hides a hazard); formula "
+                      "in the Method sheet",
     "severity": "minor / moderate / severe by the speed gap",
     "speed_gap_kmh": "road speed minus supported speed (km/h)",
     "stretch_length_m": "length of the deficient stretch (m)",
@@ -183,6 +184,21 @@ COLUMN_NOTES = {
     "reason": "why the road was skipped",
     "length_m_road": "road length (m)",
 }
+
+
+def priority_formula(cfg) -> str:
+    """The priority score's formula with the run's weights, written once: the inventory SQL
+    computes exactly this (``sql/inventory.sql``), and the report, the workbook's Method sheet and
+    the header note of ``priority_score`` all show this text."""
+    w, h = cfg["inventory.priority_weights"], cfg["inventory.hazard_weight"]
+    return (f"priority_score = 100 * {h:g} * hidden + 100 * ({w['shortfall']:g} * f_shortfall + {w['speed']:g} * "
+            f"f_speed + {w['exposure']:g} * f_exposure) / {sum(w.values()):g}")
+
+
+def priority_terms(cfg) -> str:
+    return ("hidden = 1 where the crest hides a hazard (hidden_hazard not 'none'), else 0; f_shortfall = shortfall / "
+            "required SSD; f_speed = (speed judged at - supported speed) / 50 km/h; f_exposure = ln(1 + AADT) / "
+            f"ln(1 + {cfg['inventory.aadt_ref']:g}), 0 where AADT is unknown; each factor at most 1")
 
 
 def column_note(col: str, units=None) -> str | None:
@@ -257,7 +273,7 @@ def data_quality_lines(dq: dict | None, units) -> list[tuple[str, str]]:
 
 
 def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[tuple[str, str]],
-               summary_lines: list[tuple[str, str]], units=None) -> None:
+               summary_lines: list[tuple[str, str]], units=None, notes: dict[str, str] | None = None) -> None:
     """A workbook for the asset-management spreadsheet: a summary sheet, one sheet per table
     (frozen header row, column widths to fit, a note on each header cell saying what it holds
     and its unit) and a method sheet with the criteria set's source and the cautions."""
@@ -297,7 +313,7 @@ def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[t
         sh = wb.add_worksheet(name)
         for j, col in enumerate(frame.columns):
             sh.write(0, j, col, head)
-            note = column_note(col, units)
+            note = (notes or {}).get(col) or column_note(col, units)
             if note:
                 sh.write_comment(0, j, note, {"x_scale": 2})
             values = frame[col]
@@ -373,7 +389,6 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
 
 def method_lines(result, cfg) -> list[tuple[str, str]]:
     c = result.criteria.params
-    w = cfg["inventory.priority_weights"]
     bands = cfg["inventory.severity_bands_kmh"]
     return [
         ("Caution", CAUTION_TEXT),
@@ -399,10 +414,7 @@ def method_lines(result, cfg) -> list[tuple[str, str]]:
                       "K below the table is reported separately (k_below_table)"),
         ("Severity", f"speed gap below {bands[0]:g} km/h minor, {bands[0]:g}-{bands[1]:g} moderate, "
                      f"over {bands[1]:g} severe"),
-        ("Priority score", f"100 x ({w['shortfall']:g} f_shortfall + {w['speed']:g} f_speed + "
-                           f"{w['exposure']:g} f_exposure) / {sum(w.values()):g}; f_shortfall = shortfall / "
-                           f"required SSD, f_speed = speed gap / 50 km/h, f_exposure = ln(1 + AADT) / "
-                           f"ln(1 + {cfg['inventory.aadt_ref']:g}), each at most 1"),
+        ("Priority score", f"{priority_formula(cfg)}; {priority_terms(cfg)}"),
     ]
 
 
@@ -411,17 +423,32 @@ CAUTION_TEXT = ("Screening results only. Every finding must be confirmed by fiel
                 "used here.")
 
 
-def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> None:
+def _failure(what: str, exc: BaseException) -> dict:
+    return {"output": what, "error": f"{type(exc).__name__}: {' '.join(str(exc).split())[:200]}"}
+
+
+def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> list[dict]:
     """Every output file of the run, into ``folder``, in the run's units. With a process
-    ``pool``, the report's figures are drawn there while the tables are written here."""
+    ``pool``, the report's figures are drawn there while the tables are written here.
+
+    The data outputs (CSV, workbook, GeoPackage, Parquet) are written first and a fault in them
+    stops the run. The report, its figures and the PDF come after: a fault there is caught and
+    returned (``[{"output", "error"}]``, recorded in ``run.json``), the output at fault is left
+    out rather than left half-written, and one curve's figure failing gives a placeholder on
+    its page instead of losing the report."""
     from .report import build_report, curve_png, network_map, png_data_uri, report_pages, write_profiles_pdf
     from .units import OutputUnits
 
+    failures: list[dict] = []
     units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
-    pages = report_pages(result, cfg, units)
+    try:
+        pages = report_pages(result, cfg, units)
+    except Exception as exc:  # the report is lost, the data are not
+        pages = None
+        failures.append(_failure("report.html", exc))
     # drawing in the pool pays when its processes are already running or the pages are many
     warm = result.chunks.get("computed", 0) > 1
-    use_pool = pool is not None and (warm or len(pages) >= 25)
+    use_pool = pool is not None and pages is not None and (warm or len(pages) >= 25)
     futures = [pool.submit(curve_png, p["spec"]) for p in pages] if use_pool else None
     ev = result.evaluation
     curves = curves_table(ev.curves)
@@ -456,11 +483,35 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> None:
     write_xlsx(folder / "deficiencies.xlsx",
                {"_summary": out["summary"], "Deficiencies": out["deficiencies"], "Curves": out["curves"],
                 "Horizontal curves": out["hcurves"], "Roads": out["roads"], "Data notes": out["notes"]},
-               method, summary_lines, units)
+               method, summary_lines, units,
+               notes={"priority_score": f"higher first: {priority_formula(cfg)}; {priority_terms(cfg)}"})
     write_gpkg(folder / "audit.gpkg", result, curves, defs, hcurves, units)
-    map_png = png_data_uri(network_map(result, ev.inventory, units))
-    pngs = [f.result() for f in futures] if futures is not None else None
-    (folder / "report.html").write_text(build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs,
-                                                     map_png), encoding="utf-8")
+
+    # the extra outputs: a fault here loses that output only
+    if pages is not None:
+        try:
+            map_png = png_data_uri(network_map(result, ev.inventory, units))
+        except Exception as exc:
+            map_png = ""  # a placeholder in the report
+            failures.append(_failure("report.html overview map", exc))
+        pngs = []
+        for i, page in enumerate(pages):
+            try:
+                pngs.append(futures[i].result() if futures is not None else curve_png(page["spec"]))
+            except Exception as exc:
+                pngs.append(None)  # a placeholder on that page
+                failures.append(_failure(f"report.html figure of road {page['road_id']} curve {page['curve_no']}",
+                                         exc))
+        try:
+            html_text = build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_png)
+            (folder / "report.html").write_text(html_text, encoding="utf-8")
+        except Exception as exc:
+            (folder / "report.html").unlink(missing_ok=True)
+            failures.append(_failure("report.html", exc))
     if cfg["output.profiles_pdf"]:
-        write_profiles_pdf(folder / "profiles.pdf", result, units)
+        try:
+            write_profiles_pdf(folder / "profiles.pdf", result, units)
+        except Exception as exc:
+            (folder / "profiles.pdf").unlink(missing_ok=True)
+            failures.append(_failure("profiles.pdf", exc))
+    return failures

@@ -23,12 +23,20 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
                 road_length_m: float | None = None) -> tuple[float, float] | None:
     """Chainage range (from, to; from <= to) of road surface hidden beyond a crest from drivers
     ``sight_m`` back, travelling in ``direction`` (+1 with the chainage, -1 against it); ``None``
-    when nothing beyond the crest is hidden. ``profile(x)`` gives the road elevation (m)."""
+    when nothing beyond the crest is hidden. ``profile(x)`` gives the road elevation (m).
+
+    ``crest_pvt_m`` is the end of the curve in the direction of travel; the curve is taken as
+    symmetric about ``crest_pvi_m``. Road points ``q`` are scanned from the start of the curve
+    (a point on the straight approach grade cannot be hidden from a driver on the same grade)
+    to ``S`` plus a curve length beyond its end, so the zone begins where the surface is first
+    hidden -- where the sight line grazes the crest, before the PVI when ``S`` is long -- and
+    ends where it reappears. Of several hidden runs, the one nearest the PVI is this crest's.
+    Geometry of the line of sight: AASHTO Green Book ch. 3 (eye height, object on the road)."""
     S = float(sight_m)
     if not S > 0:
         return None
     half = abs(crest_pvt_m - crest_pvi_m)
-    q = crest_pvi_m + direction * np.arange(0.0, S + 2 * half + step_m, step_m)
+    q = crest_pvi_m + direction * np.arange(-half, S + 2 * half + step_m, step_m)
     p = q - direction * S
     keep = (p >= 0) & (q >= 0)
     if road_length_m is not None:
@@ -50,7 +58,10 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
         return None
     from .profile import run_lengths
 
-    a, b = run_lengths(hidden)[0]
+    runs = run_lengths(hidden)
+    dist = [0.0 if min(q[a], q[b - 1]) <= crest_pvi_m <= max(q[a], q[b - 1])
+            else min(abs(q[a] - crest_pvi_m), abs(q[b - 1] - crest_pvi_m)) for a, b in runs]
+    a, b = runs[int(np.argmin(dist))]
     lo, hi = sorted((float(q[a]), float(q[b - 1])))
     return lo, hi
 

@@ -92,12 +92,34 @@ def _short(exc: BaseException) -> str:
     return " ".join(str(exc).split())[:160]
 
 
+GEOMETRY_TEXT_COLUMNS = ("wkt", "geometry", "geom")  # matched without regard to case
+
+
+def geometry_text_column(columns, path: Path, wanted: str = "", explicit: bool = False) -> str | None:
+    """The CSV column holding geometry as WKT: ``wanted`` when present (or when set
+    explicitly, else :class:`InputError`), otherwise the one column named ``wkt``,
+    ``geometry`` or ``geom`` in any case (``WKT`` too, as GeoPandas and GIS exports write
+    them). Two such columns and no choice made stop the run. ``None`` when there is none."""
+    columns = [str(c) for c in columns]
+    if wanted and wanted in columns:
+        return wanted
+    if wanted and explicit:
+        raise InputError(f"{path}: no column {wanted!r} with the geometry as WKT "
+                         f"(columns: {', '.join(columns[:12])}); fix roads.wkt_column")
+    found = [c for c in columns if c.strip().lower() in GEOMETRY_TEXT_COLUMNS]
+    if len(found) > 1:
+        raise InputError(f"{path}: several geometry columns ({', '.join(found)}); choose one with roads.wkt_column")
+    return found[0] if found else None
+
+
 def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "", wkt_column: str = "",
-               crs_text: str = "", crs_setting: str = "") -> tuple[pd.DataFrame, pyproj.CRS | None]:
+               crs_text: str = "", crs_setting: str = "", wkt_explicit: bool = False
+               ) -> tuple[pd.DataFrame, pyproj.CRS | None]:
     """Read a vector or CSV file as a DataFrame with a shapely ``geometry`` column (or none).
 
     Returns the frame and its CRS (``None`` where neither the file nor the
-    config gives one).
+    config gives one). For a CSV, the WKT column used is named in
+    ``frame.attrs["geometry_column"]`` (see :func:`geometry_text_column`).
     """
     import geopandas as gpd
 
@@ -113,7 +135,8 @@ def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "
         frame.columns = [str(c).strip() for c in frame.columns]
         if len(frame) == 0:
             raise InputError(f"{path}: {what} file has a header but no rows; export the data again")
-        if wkt_column and wkt_column in frame.columns:
+        wkt_column = geometry_text_column(frame.columns, path, wkt_column, wkt_explicit)
+        if wkt_column:
             text = np.array([v if isinstance(v, str) and v.strip() else None for v in frame[wkt_column]],
                             dtype=object)
             geoms = shapely.from_wkt(text, on_invalid="ignore")
@@ -124,6 +147,7 @@ def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "
                 )
             frame = frame.drop(columns=[wkt_column])
             frame["geometry"] = geoms
+            frame.attrs["geometry_column"] = wkt_column
         return frame, crs
     if suffix == ".parquet":
         try:
@@ -305,20 +329,25 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
     frame, crs = read_table(
         path, what="roads", layer=cfg["roads.layer"], layer_setting="roads.layer (--roads-layer)",
         wkt_column=cfg["roads.wkt_column"], crs_text=cfg["roads.crs"], crs_setting="roads.crs (--roads-crs)",
+        wkt_explicit="roads.wkt_column" in cfg.explicit,
     )
+    geometry_column = frame.attrs.get("geometry_column")
     id_col = cfg["roads.id_column"]
     if len(frame) == 0:
         raise InputError(f"{path}: no roads in the file; export the centrelines again")
     if "geometry" not in frame.columns:
         raise InputError(
-            f"{path}: no geometry; a CSV needs a WKT column named {cfg['roads.wkt_column']!r} "
-            f"(set roads.wkt_column)"
+            f"{path}: no geometry; a CSV needs a WKT column named wkt, geometry or geom "
+            f"(or set roads.wkt_column)"
         )
     if id_col not in frame.columns:
         raise InputError(
             f"{path}: no column {id_col!r} for the road identifier "
             f"(columns: {', '.join(map(str, frame.columns[:12]))}); set roads.id_column or --id-column"
         )
+    from .evidence import check_road_columns
+
+    column_notes = check_road_columns([c for c in frame.columns if c != "geometry"], cfg, path)
     if crs is None:
         raise InputError(f"{path}: no CRS in the file; state it with roads.crs or --roads-crs (e.g. EPSG:32633)")
     if not (crs.is_geographic or crs.is_projected):
@@ -358,6 +387,9 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
         keys[present] = [working_crs_key(crs, a, b) for a, b in zip(shapely.get_x(cent), shapely.get_y(cent))]
     table["source_id"] = source_ids
     roads = Roads(path=path, table=table, source_crs=crs)
+    roads.notes += column_notes
+    if geometry_column:
+        roads.notes.append(f"{path.name}: centrelines read as WKT from column {geometry_column!r}")
     for orig, renamed in duplicated:
         roads.notes.append(f"road id {orig!r} appears more than once; the later copies are kept apart as "
                            f"{', '.join(repr(r) for r in renamed)}")
@@ -435,6 +467,7 @@ class PointGround:
     arrays: dict[str, np.ndarray]
     groups: dict[str, tuple[int, int]]
     kind: str = "points"
+    crs_assumed: bool = False  # no CRS stated: taken as the roads' CRS
 
     def points(self, road_id: str) -> dict[str, np.ndarray] | None:
         span = self.groups.get(road_id)
@@ -578,9 +611,10 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
     else:
         raise InputError(f"{path}: ground points need columns x, y (or a point geometry) or chainage_m")
     del frame
+    crs_assumed = False
     if mode == "xy":
         if crs is None:
-            crs = roads.source_crs
+            crs, crs_assumed = roads.source_crs, True
             roads.notes.append(f"{path.name}: no CRS stated for ground points; taken as the roads' CRS")
     order = np.argsort(codes, kind="stable")[np.count_nonzero(~keep):]  # rows without an id go first: dropped
     sorted_codes = codes[order]
@@ -588,7 +622,8 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
     stops = np.searchsorted(sorted_codes, np.arange(len(uniques)), side="right")
     arrays = {c: np.asarray(v, dtype=float)[order] for c, v in cols.items()}
     groups = {u: (int(a), int(b)) for u, a, b in zip(unique_ids, starts, stops)}
-    return PointGround(path=path, crs=crs, mode=mode, rows=int(len(order)), arrays=arrays, groups=groups)
+    return PointGround(path=path, crs=crs, mode=mode, rows=int(len(order)), arrays=arrays, groups=groups,
+                       crs_assumed=crs_assumed)
 
 
 

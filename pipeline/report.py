@@ -265,6 +265,10 @@ LOADED_JS = """window.addEventListener('load', function () {
 });"""
 
 
+FIGURE_MISSING = ("<p class='caution figure-missing'>{what} could not be drawn; the failure is recorded in "
+                  "run.json (output_failures). The data files (CSV, workbook, GeoPackage) are complete.</p>")
+
+
 def _e(v) -> str:
     if v is None or (isinstance(v, float) and not np.isfinite(v)):
         return ""
@@ -384,6 +388,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     cards = [("length audited", f"{dist:,.1f} {units.distance_label}"),
              ("roads evaluated", f"{r['evaluated']} of {r['in']}"),
              ("roads skipped", f"{r['skipped']}"),
+             ("at substituted speeds", f"{r.get('judged_at_substituted_speeds', 0)}"),
              ("vertical curves", f"{len(curves)}"),
              ("deficient curves", f"{deficient_curves}"),
              ("undetermined curves", f"{int((curves['verdict'] == 'undetermined').sum()) if len(curves) else 0}"),
@@ -392,6 +397,10 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
              ("hiding a hazard", f"{int((inv['hidden_hazard'] != 'none').sum()) if len(inv) else 0}")]
     parts += [f"<div class='card'><b class='figure' data-name='{_e(k)}'>{_e(v)}</b>{_e(k)}</div>" for k, v in cards]
     parts.append("</div>")
+    overridden = summary.get("evidence", {}).get("overridden", [])
+    if overridden:
+        parts.append(f"<p class='caution'>Checks on the inputs overridden by the settings (checks.override): "
+                     f"{_e(', '.join(overridden))}; see the data notes.</p>")
     parts.append(f"<p>Deficient length (each direction counted): minor {sev_km['minor']:.2f}, moderate "
                  f"{sev_km['moderate']:.2f}, severe {sev_km['severe']:.2f} {units.distance_label}.</p>")
     by_class = units.table(ev.summary)
@@ -401,9 +410,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
 
     # --- map
     parts.append("<h2 id='map'>Network overview</h2>")
-    map_png = map_png or png_data_uri(network_map(result, inv, units))
+    map_png = png_data_uri(network_map(result, inv, units)) if map_png is None else map_png
     parts.append(f"<img alt='Map of the audited roads with deficient stretches coloured by severity' "
-                 f"src='{map_png}'>")
+                 f"src='{map_png}'>" if map_png else FIGURE_MISSING.format(what="The overview map"))
 
     # --- inventory
     parts.append("<h2 id='inventory'>Ranked inventory (top 50)</h2>")
@@ -464,7 +473,8 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
         ]
         ft = "".join(f"<tr><td>{_e(k)}</td><td>{v}</td></tr>" for k, v in facts)
         parts.append(f"<section class='curve sev-{_e(worst['severity'])}'><h3>{_e(title)}</h3>"
-                     f"<img alt='Long profile of {_e(rid)} curve {cno}' src='{png}'>"
+                     + (f"<img alt='Long profile of {_e(rid)} curve {cno}' src='{png}'>" if png
+                        else FIGURE_MISSING.format(what="This curve's long profile")) +
                      f"<table class='facts'>{ft}</table></section>")
 
     # --- method

@@ -1,5 +1,7 @@
 """Where the bundled files live: the SQL and criteria tables (``sql/``) and the
-sample network (``data_samples/``), both at the top of the source tree."""
+sample network (``data_samples/``), both at the top of the source tree; an installed wheel
+carries them inside the package as ``pipeline/_sql`` and ``pipeline/_samples``
+(``pyproject.toml``, ``[tool.setuptools.package-dir]``)."""
 
 from __future__ import annotations
 
@@ -8,13 +10,17 @@ from pathlib import Path
 from .errors import InputError
 
 _ROOT = Path(__file__).resolve().parent.parent
+_PACKAGE = Path(__file__).resolve().parent
+_INSTALLED = {"sql": "_sql", "data_samples": "_samples"}
 
 
 def _folder(name: str) -> Path:
-    path = _ROOT / name
-    if not path.is_dir():
-        raise InputError(f"{path}: bundled folder missing; install sightaudit from its source tree (pip install -e .)")
-    return path
+    """The bundled folder ``name``: in a source checkout at the top of the tree, in an installed
+    wheel inside the package."""
+    for path in (_PACKAGE / _INSTALLED[name], _ROOT / name):
+        if path.is_dir():
+            return path
+    raise InputError(f"{_ROOT / name}: bundled folder missing; reinstall sightaudit (pip install .)")
 
 
 def sql_dir() -> Path:
