@@ -21,6 +21,7 @@ Functions here only read and check; they do no profile numerics.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -126,9 +127,10 @@ def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "
     suffix = path.suffix.lower()
     crs = parse_crs(crs_text, crs_setting) if crs_text else None
     if suffix == ".csv" or suffix == ".txt":
+        encoding = csv_encoding(path)
         try:
-            frame = pd.read_csv(path, dtype=str, keep_default_na=False, na_values=[""])
-        except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+            frame = pd.read_csv(path, dtype=str, keep_default_na=False, na_values=[""], encoding=encoding)
+        except (pd.errors.ParserError, UnicodeDecodeError, UnicodeError) as exc:
             raise InputError(f"{path}: not a readable CSV file ({_short(exc)}); save it as UTF-8 CSV") from None
         except pd.errors.EmptyDataError:
             raise InputError(f"{path}: {what} file has no rows; export the data again") from None
@@ -139,7 +141,9 @@ def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "
         if wkt_column:
             text = np.array([v if isinstance(v, str) and v.strip() else None for v in frame[wkt_column]],
                             dtype=object)
-            geoms = shapely.from_wkt(text, on_invalid="ignore")
+            with warnings.catch_warnings():  # invalid WKT is reported below, row by row
+                warnings.simplefilter("ignore", RuntimeWarning)
+                geoms = shapely.from_wkt(text, on_invalid="ignore")
             bad = np.flatnonzero(pd.isna(geoms) & np.array([t is not None for t in text]))
             if len(bad):
                 raise InputError(
@@ -148,6 +152,7 @@ def read_table(path: Path, *, what: str, layer: str = "", layer_setting: str = "
             frame = frame.drop(columns=[wkt_column])
             frame["geometry"] = geoms
             frame.attrs["geometry_column"] = wkt_column
+        frame.attrs["encoding"] = encoding
         return frame, crs
     if suffix == ".parquet":
         try:
@@ -332,6 +337,7 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
         wkt_explicit="roads.wkt_column" in cfg.explicit,
     )
     geometry_column = frame.attrs.get("geometry_column")
+    encoding = frame.attrs.get("encoding", "utf-8")
     id_col = cfg["roads.id_column"]
     if len(frame) == 0:
         raise InputError(f"{path}: no roads in the file; export the centrelines again")
@@ -379,6 +385,10 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
     })
     raw = frame["geometry"].to_numpy(dtype=object)
     present = np.array([g is not None and not shapely.is_empty(g) for g in raw])
+    # coordinates that are not numbers (NaN, infinite) cannot be measured or projected
+    finite = np.array([not p or bool(np.isfinite(shapely.get_coordinates(g)).all()) for g, p in zip(raw, present)])
+    bad_coords = present & ~finite
+    present &= finite
 
     # each road's working CRS: one for projected data, the UTM zone of its centroid for lon/lat
     keys = np.full(len(table), "source", dtype=object)
@@ -390,6 +400,8 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
     roads.notes += column_notes
     if geometry_column:
         roads.notes.append(f"{path.name}: centrelines read as WKT from column {geometry_column!r}")
+    if encoding not in ("utf-8", "utf-8-sig"):
+        roads.notes.append(f"{path.name}: not UTF-8; read as {encoding} (names with accents may need checking)")
     for orig, renamed in duplicated:
         roads.notes.append(f"road id {orig!r} appears more than once; the later copies are kept apart as "
                            f"{', '.join(repr(r) for r in renamed)}")
@@ -397,6 +409,7 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
     src_lines = np.full(len(table), None, dtype=object)
     reasons = np.full(len(table), None, dtype=object)
     reasons[~present] = "no geometry"
+    reasons[bad_coords] = "coordinates that are not finite numbers (NaN or infinite) in the geometry"
     tol = cfg["roads.join_tolerance_m"]
     for key in sorted(set(keys[present])) if present.any() else []:
         wcrs = working_crs(crs, key)
@@ -539,6 +552,23 @@ def dem_cell_m(dem: DemGround, affine, y_mid: float) -> float:
         return float(np.sqrt(w * np.cos(lat) * h) * 111_320.0)
     factor = dem.crs.axis_info[0].unit_conversion_factor if dem.crs.axis_info else 1.0
     return float(np.sqrt(w * h) * factor)
+
+
+def csv_encoding(path: Path) -> str:
+    """The text encoding of a CSV: UTF-16 or UTF-8 where a byte-order mark says so, UTF-8 where
+    the bytes decode as UTF-8, otherwise Windows-1252 (what spreadsheet programs write on
+    Windows; every byte decodes, so accented names survive). Anything but plain UTF-8 is named
+    in a note by the caller."""
+    head = Path(path).read_bytes()
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return "utf-16"
+    if head.startswith(b"\xef\xbb\xbf"):
+        return "utf-8-sig"
+    try:
+        head.decode("utf-8")
+        return "utf-8"
+    except UnicodeDecodeError:
+        return "cp1252"
 
 
 def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 2):
