@@ -71,8 +71,11 @@ def test_report_renders_in_headless_chromium(demo_out, tmp_path):
     assert m.group(1) == m.group(2) and int(m.group(2)) >= 2
     d = pd.read_csv(demo_out / "deficiencies.csv")
     c = pd.read_csv(demo_out / "curves.csv")
-    assert f">{len(d)}</b>" in dom  # deficient stretches
-    assert f">{int(c['deficient'].sum())}</b>" in dom  # deficient curves
+    # the cards count deficient stretches and curves, and curves the data cannot decide
+    assert f"data-name='deficient stretches'>{int((d['verdict'] == 'deficient').sum())}</b>" in dom.replace('"', "'")
+    assert f"data-name='deficient curves'>{int(c['deficient'].sum())}</b>" in dom.replace('"', "'")
+    assert f"data-name='undetermined curves'>{int((c['verdict'] == 'undetermined').sum())}</b>" in dom.replace('"', "'")
+    assert "What this ground data can support" in dom
     shot = tmp_path / "report.png"
     subprocess.run([CHROMIUM, *common, "--window-size=1200,3000", f"--screenshot={shot}", url],
                    capture_output=True, timeout=180)
