@@ -28,8 +28,8 @@ import time
 
 import numpy as np
 
-from pipeline.alignment import fit_profile
-from pipeline.synthetic import random_alignment
+from pipeline.alignment.fit import fit_profile
+from pipeline.demo.synthetic import random_alignment
 
 NOISES = (0.02, 0.05, 0.1, 0.25, 0.5)
 STEPS = (1.0, 2.0, 5.0, 10.0)

@@ -89,7 +89,7 @@ def sight_loops(chainage, z_of, grade_of, eye=1.08, obj=0.6, head=0.6, beam_deg=
 
 def run(roads: pd.DataFrame, points: pd.DataFrame | None, step: float = 5.0, dem: str | None = None) -> dict:
     """Seconds spent per stage on these roads by the obvious implementation."""
-    from pipeline.alignment import RoadProfile, fit_profile
+    from pipeline.alignment.fit import RoadProfile, fit_profile
 
     t = {"profile": 0.0, "alignment": 0.0, "sight": 0.0}
     grouped = dict(tuple(points.groupby("road_id"))) if points is not None else {}

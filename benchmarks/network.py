@@ -2,7 +2,7 @@
 
 Roads of 2 to 15 km are laid out on a grid (so none cross), each with plan
 elements (straights and circular arcs of 150-1500 m radius) and a random but
-designable vertical alignment (see :func:`pipeline.synthetic.random_alignment`).
+designable vertical alignment (see :func:`pipeline.demo.synthetic.random_alignment`).
 Ground data:
 
 - ground points every 2 m along each road, up to 3 m to either side, with 5 cm
@@ -45,7 +45,7 @@ def make_network(km: float, out: Path, seed: int = 1, dem: bool = False, spacing
     import geopandas as gpd
     import shapely
 
-    from pipeline.synthetic import plan_polyline, random_alignment
+    from pipeline.demo.synthetic import plan_polyline, random_alignment
 
     rng = np.random.default_rng(seed)
     out.mkdir(parents=True, exist_ok=True)

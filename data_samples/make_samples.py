@@ -116,7 +116,7 @@ def build(out_dir: Path = HERE) -> dict:
     from rasterio.transform import from_origin
     from scipy.spatial import cKDTree
 
-    from pipeline.synthetic import VerticalAlignment, plan_polyline
+    from pipeline.demo.synthetic import VerticalAlignment, plan_polyline
 
     rng = np.random.default_rng(SEED)
     x0, y0 = 520000.0, 5310000.0  # local origin of the scenario in UTM 33N
@@ -233,7 +233,7 @@ def build(out_dir: Path = HERE) -> dict:
     gdf.to_file(roads_path, layer="roads", driver="GPKG", engine="pyogrio")
 
     # ground points sampled from the DEM, every 2 m with lateral scatter
-    from pipeline.profile import bilinear
+    from pipeline.profile.stations import bilinear
 
     rows = []
     with rasterio.open(dem_path) as src:

@@ -13,7 +13,7 @@ import time
 from pathlib import Path
 
 from . import __version__
-from .errors import InputError
+from .core.errors import InputError
 
 DESCRIPTION = (
     "Screening audit of rural roads for stopping-sight-distance (SSD) shortfalls on crest and "
@@ -146,7 +146,7 @@ class _RichProgress:
 
 
 def _progress(args):
-    from .batch import Progress
+    from .runner.network import Progress
 
     if args.quiet:
         return Progress()
@@ -198,8 +198,8 @@ def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
 
 
 def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> int:
-    from .batch import run_audit
-    from .config import load_config
+    from .runner.network import run_audit
+    from .core.config import load_config
 
     cfg = load_config(config, overrides)
     out = Path(args.out)
@@ -215,7 +215,7 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
 
 
 def _init(args) -> int:
-    from .config import example_toml
+    from .core.config import example_toml
 
     path = Path(args.path)
     if path.exists() and not args.force:
@@ -227,8 +227,8 @@ def _init(args) -> int:
 
 
 def _validate(args) -> int:
-    from .checks import check_inputs
-    from .config import load_config
+    from .runner.checks import check_inputs
+    from .core.config import load_config
 
     overrides = {key: getattr(args, key, None) for _, key, _, _, _ in RUN_FLAGS}
     cfg = load_config(args.config, overrides)
@@ -284,8 +284,8 @@ def _validate(args) -> int:
 
 
 def _criteria(args) -> int:
-    from .config import load_config
-    from .criteria import get_set, load_sets, template
+    from .core.config import load_config
+    from .evaluate.criteria import get_set, load_sets, template
 
     if args.template:
         print(template(), end="")
@@ -333,7 +333,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.command == "validate":
             return _validate(args)
         if args.command == "demo":
-            from .resources import sample_paths
+            from .core.resources import sample_paths
 
             paths = sample_paths()
             return _run(args, str(paths["roads"]), str(paths["dem"]), {"structures.file": str(paths["structures"]),

@@ -51,7 +51,7 @@ def run_cli(capsys):
 
 @pytest.fixture(scope="session")
 def samples():
-    from pipeline.resources import sample_paths
+    from pipeline.core.resources import sample_paths
 
     return sample_paths()
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from pipeline.alignment import (_jacobian, fit_profile, model_grade, model_z, noise_sigma, segment_lines)
+from pipeline.alignment.fit import (_jacobian, fit_profile, model_grade, model_z, noise_sigma, segment_lines)
 
 
 def textbook_profile(x, pvis):
@@ -208,7 +208,7 @@ def test_flat_road_in_a_noisy_dem_has_no_spurious_curves():
 
 
 def test_no_overlap_and_order_on_noisy_rolling_road():
-    from pipeline.synthetic import random_alignment
+    from pipeline.demo.synthetic import random_alignment
 
     rng = np.random.default_rng(13)
     va = random_alignment(rng, 6000.0)

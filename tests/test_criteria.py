@@ -7,10 +7,10 @@ import duckdb
 import numpy as np
 import pytest
 
-from pipeline.criteria import get_set
-from pipeline.errors import InputError
-from pipeline.sight import crest_length_formula, sag_length_formula
-from pipeline.sqlrun import sql_text
+from pipeline.evaluate.criteria import get_set
+from pipeline.core.errors import InputError
+from pipeline.sight.lines import crest_length_formula, sag_length_formula
+from pipeline.core.sqlrun import sql_text
 
 METRIC = get_set("aashto-2018-metric")
 US = get_set("aashto-2018-us")

@@ -10,9 +10,9 @@ import pandas as pd
 import pytest
 
 from conftest import write_dem
-from pipeline.artefacts import detect, implausible_grades
-from pipeline.batch import run_network
-from pipeline.config import load_config
+from pipeline.profile.artefacts import detect, implausible_grades
+from pipeline.runner.network import run_network
+from pipeline.core.config import load_config
 
 X0, Y0 = 500000.0, 5300000.0
 
@@ -195,7 +195,7 @@ def test_mixed_batch_skips_bad_roads_and_evaluates_good_ones_as_alone(tmp_path):
     assert any("more than once" in n for n in mixed.notes)
     assert "road partly without ground data" in set(mixed.data_notes().query("road_id == 'HALF'")["note"])
 
-    from pipeline.batch import accounting
+    from pipeline.runner.network import accounting
 
     acc = accounting(mixed)
     assert acc["in"] == acc["evaluated"] + acc["skipped"] == len(bad_roads)
@@ -280,7 +280,7 @@ def test_bad_config_value(tmp_path, run_cli):
 def test_failure_while_writing_leaves_nothing_half_written(tmp_path, run_cli, monkeypatch):
     """An error after some files are written: the previous output stays as it was and no folder
     that looks complete (or any staging folder) is left behind."""
-    import pipeline.export as export
+    import pipeline.outputs.export as export
 
     roads = straight_roads_csv(tmp_path / "r.csv", [("A", 500.0, 80, 0)])
     (tmp_path / "g.csv").write_text("road_id,chainage_m,z\nA,0,1\nA,500,2\n")

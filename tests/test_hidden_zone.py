@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from pipeline.hazards import hidden_zone
+from pipeline.sight.hazards import hidden_zone
 
 EYE = 1.08
 

@@ -29,7 +29,7 @@ def test_output_path_with_apostrophe_and_brackets(tmp_path, run_cli):
 
 def test_parquet_relation_reads_a_path_with_quote_semicolon_and_glob_characters(tmp_path):
     """The helper reads exactly the listed files (reference: pandas.read_parquet of the same files)."""
-    from pipeline.sqlrun import parquet_relation, write_parquet_from
+    from pipeline.core.sqlrun import parquet_relation, write_parquet_from
 
     folder = tmp_path / "a'b; DROP [x]*"
     folder.mkdir()

@@ -8,9 +8,9 @@ import pytest
 import shapely
 
 from conftest import write_roads_gpkg
-from pipeline.config import Config
-from pipeline.ingest import merge_parts, read_roads
-from pipeline.profile import locate_points, station_chainages
+from pipeline.core.config import Config
+from pipeline.ingest.readers import merge_parts, read_roads
+from pipeline.profile.stations import locate_points, station_chainages
 
 
 def _winding_lonlat(lon0=15.31, lat0=47.92, n=60, seed=3):
@@ -124,7 +124,7 @@ def test_ground_points_grouped_by_id_like_pandas_groupby(tmp_path):
     (common practice, no source)."""
     import pandas as pd
 
-    from pipeline.ingest import open_ground
+    from pipeline.ingest.readers import open_ground
 
     from shapely.geometry import LineString
 

@@ -28,7 +28,7 @@ def _data_outputs_complete(out):
 
 
 def test_report_failure_keeps_the_data_outputs(tmp_path, samples, run_cli, monkeypatch):
-    import pipeline.report as report
+    import pipeline.outputs.report as report
 
     def broken(*a, **k):
         raise KeyError(0)
@@ -49,7 +49,7 @@ def test_report_failure_keeps_the_data_outputs(tmp_path, samples, run_cli, monke
 
 
 def test_one_figure_failing_gives_a_placeholder(tmp_path, samples, run_cli, monkeypatch):
-    import pipeline.report as report
+    import pipeline.outputs.report as report
 
     real = report.curve_png
     calls = []
@@ -74,7 +74,7 @@ def test_one_figure_failing_gives_a_placeholder(tmp_path, samples, run_cli, monk
 
 
 def test_pdf_failure_leaves_no_partial_pdf(tmp_path, samples, run_cli, monkeypatch):
-    import pipeline.report as report
+    import pipeline.outputs.report as report
 
     def half_written(path, *a, **k):
         path.write_bytes(b"%PDF-1.4 partial")

@@ -7,13 +7,13 @@ import pandas as pd
 import pytest
 import shapely
 
-from pipeline.batch import run_network
-from pipeline.config import load_config
-from pipeline.criteria import get_set
-from pipeline.plan import fit_circle, horizontal_curves, min_radius_ft, min_radius_m, sight_line_offset
-from pipeline.speed import (predict_v85, v85_crest_on_tangent, v85_horizontal_on_grade, v85_horizontal_with_crest,
+from pipeline.runner.network import run_network
+from pipeline.core.config import load_config
+from pipeline.evaluate.criteria import get_set
+from pipeline.plan.horizontal import fit_circle, horizontal_curves, min_radius_ft, min_radius_m, sight_line_offset
+from pipeline.plan.speed import (predict_v85, v85_crest_on_tangent, v85_horizontal_on_grade, v85_horizontal_with_crest,
                             v85_horizontal_with_sag)
-from pipeline.synthetic import plan_polyline
+from pipeline.demo.synthetic import plan_polyline
 
 METRIC = get_set("aashto-2018-metric")
 US = get_set("aashto-2018-us")

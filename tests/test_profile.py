@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from rasterio.transform import from_origin
 
-from pipeline.profile import FILLED, MEASURED, MISSING, bilinear, regularise, station_chainages
+from pipeline.profile.stations import FILLED, MEASURED, MISSING, bilinear, regularise, station_chainages
 
 # 3 x 3 raster, 10 m cells, upper-left corner at (0, 30): cell (row r, col c) has its centre
 # at x = 5 + 10 c, y = 25 - 10 r. Values form the plane z = 10 + 10 c + 30 r.

@@ -8,10 +8,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from pipeline.alignment import fit_profile
-from pipeline.artefacts import detect
-from pipeline.profile import FLAG_NAMES, regularise, station_chainages
-from pipeline.sight import SightRules, sight_both_ways
+from pipeline.alignment.fit import fit_profile
+from pipeline.profile.artefacts import detect
+from pipeline.profile.stations import FLAG_NAMES, regularise, station_chainages
+from pipeline.sight.lines import SightRules, sight_both_ways
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 elev = st.floats(min_value=-500.0, max_value=3000.0, allow_nan=False, allow_infinity=False)

@@ -17,8 +17,8 @@ from shapely.geometry import LineString
 
 from conftest import write_roads_gpkg
 from prism import parabolic_profile, prism_dem
-from pipeline.config import load_config
-from pipeline.sqlrun import sql_text
+from pipeline.core.config import load_config
+from pipeline.core.sqlrun import sql_text
 
 # AASHTO Green Book (2018) Table 3-1, metric: design SSD 130 m at 80 km/h
 SSD_80 = 130.0
@@ -120,15 +120,15 @@ def test_angle_point_is_a_flagged_short_curve_and_the_run_completes(tmp_path, ru
 
 
 def _fit_with_sd(x, z, res_m=0.0):
-    from pipeline.alignment import fit_profile
-    from pipeline.roadwork import curve_uncertainties
+    from pipeline.alignment.fit import fit_profile
+    from pipeline.runner.roadwork import curve_uncertainties
 
     stretches, curves, _, _ = fit_profile(x, z, 5.0)
     return curves.join(curve_uncertainties(stretches, x, z, res_m, load_config(None, {})["alignment.noise_floor_m"]))
 
 
 def test_k_uncertainty_matches_a_monte_carlo_estimate_and_shrinks_with_noise():
-    """The predicted standard deviation of K (linearised least squares, pipeline.uncertainty)
+    """The predicted standard deviation of K (linearised least squares, pipeline.alignment.uncertainty)
     against the spread of K over repeated fits to independently noised copies of one profile
     (Monte Carlo; e.g. JCGM 101:2008, the GUM supplement on propagation by Monte Carlo).
     Within a factor of 1.6 either way, and smaller at lower noise."""

@@ -34,9 +34,9 @@ def demo_pdf_out(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def demo_result():
-    from pipeline.batch import run_network
-    from pipeline.config import load_config
-    from pipeline.resources import sample_paths
+    from pipeline.runner.network import run_network
+    from pipeline.core.config import load_config
+    from pipeline.core.resources import sample_paths
 
     p = sample_paths()
     cfg = load_config(None, {"structures.file": str(p["structures"]), "junctions.file": str(p["junctions"])})
@@ -118,8 +118,8 @@ def _check_axes(fig, unit="m", min_font=8.0):
 
 
 def test_figures_have_units_titles_and_print_size_text(demo_result):
-    from pipeline.report import curve_figure, network_map, road_figure
-    from pipeline.units import OutputUnits
+    from pipeline.outputs.report import curve_figure, network_map, road_figure
+    from pipeline.core.units import OutputUnits
 
     r, u = demo_result, OutputUnits()
     inv, cv = r.evaluation.inventory, r.evaluation.curves
@@ -161,7 +161,7 @@ def test_help_fits_on_one_screen(args):
 def test_init_writes_a_config_that_loads(tmp_path, run_cli):
     import tomllib
 
-    from pipeline.config import SPEC, load_config
+    from pipeline.core.config import SPEC, load_config
 
     path = tmp_path / "s.toml"
     code, out, _ = run_cli("init", path)
@@ -206,8 +206,8 @@ def us_inputs(tmp_path_factory):
     import rasterio
     import shapely
 
-    from pipeline.resources import sample_paths
-    from pipeline.units import kmh_per_mph, metres_per
+    from pipeline.core.resources import sample_paths
+    from pipeline.core.units import kmh_per_mph, metres_per
 
     d = tmp_path_factory.mktemp("us")
     p = sample_paths()

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from pipeline.batch import chunk_rows
+from pipeline.runner.network import chunk_rows
 
 COMPARED = ("curves.csv", "deficiencies.csv", "horizontal_curves.csv", "roads.csv", "data_notes.csv")
 

@@ -7,8 +7,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from pipeline.alignment import model_grade, model_z
-from pipeline.sight import (BEAM, END, LOOKAHEAD, LOS, SightRules, attribute, crest_sight_formula,
+from pipeline.alignment.fit import model_grade, model_z
+from pipeline.sight.lines import (BEAM, END, LOOKAHEAD, LOS, SightRules, attribute, crest_sight_formula,
                             sag_sight_formula, sight_both_ways, sight_from)
 
 RULES = SightRules(eye_height_m=1.08, object_height_m=0.60, headlight_height_m=0.60, beam_angle_deg=1.0,

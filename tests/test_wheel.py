@@ -35,10 +35,10 @@ def test_wheel_holds_sql_criteria_and_samples(wheel):
 
 
 def test_installed_layout_is_found(wheel, tmp_path):
-    """Unpacked as an installer would, outside the checkout, pipeline.resources finds the
+    """Unpacked as an installer would, outside the checkout, pipeline.core.resources finds the
     bundled folders inside the package."""
     zipfile.ZipFile(wheel).extractall(tmp_path / "site")
-    code = ("import pipeline.resources as r, pathlib; "
+    code = ("import pipeline.core.resources as r, pathlib; "
             "print(r.sql_dir()); print(r.sample_paths()['dem'].is_file())")
     proc = subprocess.run([sys.executable, "-I", "-c", f"import sys; sys.path.insert(0, {str(tmp_path / 'site')!r}); "
                            + code], capture_output=True, text=True, cwd=tmp_path, timeout=60)

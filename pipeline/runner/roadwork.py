@@ -14,11 +14,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .config import Config
-from .ingest import DemGround, PointGround, is_ballpark, read_dem_window, transformer
-from .corridor import carriageway_offsets, cell_crossing_filter, dem_vertical_error_m, resolution_length_m
-from .ingest import dem_cell_m
-from .profile import (FILLED, FLAG_NAMES, MASKED, MISSING, Polyline, bilinear, point_spacing_m, regularise,
+from ..core.config import Config
+from ..ingest.readers import DemGround, PointGround, is_ballpark, read_dem_window, transformer
+from ..profile.corridor import carriageway_offsets, cell_crossing_filter, dem_vertical_error_m, resolution_length_m
+from ..ingest.readers import dem_cell_m
+from ..profile.stations import (FILLED, FLAG_NAMES, MASKED, MISSING, Polyline, bilinear, point_spacing_m, regularise,
                       run_lengths, station_chainages)
 
 PREDICTED = "predicted (FHWA-RD-99-171)"
@@ -76,7 +76,7 @@ class GroundSampler:
     def structure_ranges(self, row, line) -> list:
         if self.structures is None:
             return []
-        from .ingest import structure_ranges
+        from ..ingest.readers import structure_ranges
 
         return structure_ranges(self.structures, line, self.work_crs[row["work_key"]], row["road_id"],
                                 row["source_id"], self.cfg)
@@ -85,7 +85,7 @@ class GroundSampler:
         """Junctions and accesses from the user's layer on this road: (chainage, label)."""
         if self.junctions is None:
             return []
-        from .ingest import feature_chainages
+        from ..ingest.readers import feature_chainages
 
         found = feature_chainages(self.junctions, row["geometry"], self.work_crs[row["work_key"]],
                                   row["road_id"], row["source_id"], self.cfg["junctions.max_offset_m"])
@@ -226,8 +226,8 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
         out.notes.append(("road partly without ground data", None, None,
                           f"ground data cover {100 * have.mean():.0f} % of the road; evaluated over that part only"))
     # artefacts: spikes, pits, bridge or culvert dips, humps, known structures
-    from .alignment import noise_sigma
-    from .artefacts import detect, implausible_grades
+    from ..alignment.fit import noise_sigma
+    from ..profile.artefacts import detect, implausible_grades
 
     known = sampler.structure_ranges(row, line)
     mask, art_notes = detect(stations, z, cfg["profile.step_m"], noise_sigma(z), artefact_options(cfg), known)
@@ -271,7 +271,7 @@ def road_profile(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source)
 def road_alignment(out: RoadOutcome, cfg: Config) -> list:
     """Fit the vertical alignment to a road's profile (the alignment stage), with each
     curve's uncertainty (:mod:`pipeline.uncertainty`); returns the fitted stretches."""
-    from .alignment import fit_profile
+    from ..alignment.fit import fit_profile
 
     prof = out.profile
     ch = prof["chainage_m"].to_numpy()
@@ -321,7 +321,7 @@ def curve_uncertainties(stretches: list, ch: np.ndarray, z: np.ndarray, res_m: f
     """One row per curve, in the curve table's order: the standard deviations of A, L and K,
     the residual noise and its correlation, and the significance of the grade change
     (A / sd_A)."""
-    from .uncertainty import curve_parameter_covariance, k_sd
+    from ..alignment.uncertainty import curve_parameter_covariance, k_sd
 
     rows = []
     for al in stretches:
@@ -353,10 +353,10 @@ def alignment_options(cfg: Config) -> dict:
 def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
     """Available sight distance both ways on the fitted alignment (and, as a diagnostic, on
     the ground profile); each curve also seen from its PVC and PVT (the sight stage)."""
-    from .alignment import RoadProfile
-    from .sight import (LIMIT_NAMES, attribute, crest_sight_formula, sag_sight_formula, sight_both_ways,
+    from ..alignment.fit import RoadProfile
+    from ..sight.lines import (LIMIT_NAMES, attribute, crest_sight_formula, sag_sight_formula, sight_both_ways,
                         sight_from)
-    from .uncertainty import sight_sd
+    from ..alignment.uncertainty import sight_sd
 
     prof, curves = out.profile, out.curves
     ch = prof["chainage_m"].to_numpy()
@@ -407,7 +407,7 @@ def road_sight(out: RoadOutcome, stretches: list, rules, cfg: Config) -> None:
 
 def road_plan(out: RoadOutcome, line, cfg: Config) -> None:
     """Horizontal curves of the centreline, with the minimum-radius check (the plan stage)."""
-    from .plan import horizontal_curves
+    from ..plan.horizontal import horizontal_curves
 
     opts = {k: cfg[f"plan.{k}"] for k in ("smooth_m", "max_radius_m", "min_length_m", "min_deflection_deg")}
     opts["step_m"] = min(cfg["profile.step_m"], 5.0)
@@ -419,7 +419,7 @@ def road_plan(out: RoadOutcome, line, cfg: Config) -> None:
 def road_speeds(out: RoadOutcome, row: pd.Series, cfg: Config) -> None:
     """Predicted operating speed at every station both ways, and the speed each station is
     judged at (the road's speed, or the prediction where the road's basis is predicted)."""
-    from .speed import predict_v85
+    from ..plan.speed import predict_v85
 
     prof = out.profile
     ch, g = prof["chainage_m"].to_numpy(), prof["grade_pct"].to_numpy()
@@ -442,8 +442,8 @@ def road_speeds(out: RoadOutcome, row: pd.Series, cfg: Config) -> None:
 def road_hazards(out: RoadOutcome, stretches: list, junctions: list, cset, cfg: Config) -> None:
     """Hidden zone beyond every crest, both ways, at the required SSD for the speed judged at the
     crest, and the hazards in it (horizontal curves beginning, junctions and accesses)."""
-    from .alignment import RoadProfile
-    from .hazards import hazards_in_zone, hidden_zone
+    from ..alignment.fit import RoadProfile
+    from ..sight.hazards import hazards_in_zone, hidden_zone
 
     rows = []
     crests = out.curves[out.curves["kind"] == "crest"] if out.curves is not None and len(out.curves) else []
@@ -505,7 +505,7 @@ def road_hcurve_checks(out: RoadOutcome, cset, cfg: Config) -> None:
     """Each horizontal curve's speed (the highest judged on it), predicted operating speed
     (lowest on it), minimum radius for that speed, required SSD and the sight line offset it
     needs (see :mod:`pipeline.plan`)."""
-    from .plan import min_radius_m, sight_line_offset
+    from ..plan.horizontal import min_radius_m, sight_line_offset
 
     hc = out.hcurves
     if hc is None or not len(hc):

@@ -31,9 +31,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
-from .resources import sql_dir
-from .units import kmh_per_mph, metres_per
+from ..core.errors import InputError
+from ..core.resources import sql_dir
+from ..core.units import kmh_per_mph, metres_per
 
 SET_COLUMNS = ["name", "title", "source", "edition", "units", "eye_height", "object_height", "headlight_height",
                "beam_angle_deg", "reaction_time_s", "deceleration", "gravity", "speed_coef", "braking_coef",
@@ -69,7 +69,7 @@ class CriteriaSet:
         return 1.0 if self.metric else kmh_per_mph()
 
     def sight_rules(self):
-        from .sight import SightRules
+        from ..sight.lines import SightRules
 
         f = self.length_to_m
         p = self.params

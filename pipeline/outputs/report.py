@@ -67,7 +67,7 @@ def network_map(result, inventory: pd.DataFrame, units):
     import shapely
     from matplotlib.collections import LineCollection
 
-    from .profile import Polyline
+    from ..profile.stations import Polyline
 
     plt = _mpl()
     fig, ax = plt.subplots(figsize=(9.0, 7.0))

@@ -30,10 +30,10 @@ import duckdb
 import numpy as np
 import pandas as pd
 
-from . import __version__
-from .config import Config
-from .export import CAUTION_TEXT as CAUTION
-from .ingest import PointGround, Roads, file_sha256, open_ground, read_roads
+from .. import __version__
+from ..core.config import Config
+from ..outputs.export import CAUTION_TEXT as CAUTION
+from ..ingest.readers import PointGround, Roads, file_sha256, open_ground, read_roads
 from .roadwork import HAZARD_COLUMNS, HCURVE_CHECK_COLUMNS, PREDICTED, Job, process_chunk
 
 
@@ -63,7 +63,7 @@ def resolve_speeds(table: pd.DataFrame, cfg: Config) -> tuple[np.ndarray, np.nda
 
     raw = table["speed_raw"].to_numpy(dtype=float)
     if speed_unit(cfg) == "mph":  # the speed column is in mph
-        from .units import kmh_per_mph
+        from ..core.units import kmh_per_mph
 
         raw = raw * kmh_per_mph()
     margin = cfg["speed.margin_kmh"]
@@ -93,7 +93,7 @@ def network_junction_points(roads: Roads, cfg: Config) -> dict[str, list]:
     """Junctions where one road's end meets another road (per working CRS)."""
     if not cfg["junctions.from_network"]:
         return {}
-    from .hazards import network_junctions
+    from ..sight.hazards import network_junctions
 
     t = roads.table
     out: dict[str, list] = {}
@@ -179,7 +179,7 @@ def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
     """A chunk table with a fixed schema even when empty (so every chunk file reads alike)."""
     if frame is not None and len(frame):
         return frame
-    from .alignment import empty_curves
+    from ..alignment.fit import empty_curves
 
     if name == "profiles":
         return empty_profiles()
@@ -200,7 +200,7 @@ def _typed(name: str, frame: pd.DataFrame) -> pd.DataFrame:
         return pd.DataFrame({c: pd.Series(dtype="int64" if c == "curve_no" else
                                           (float if c.endswith("_m") else str)) for c in HAZARD_COLUMNS})
     if name == "hcurves":
-        from .plan import HCURVE_COLUMNS
+        from ..plan.horizontal import HCURVE_COLUMNS
 
         cols = ["road_id"] + HCURVE_COLUMNS + HCURVE_CHECK_COLUMNS
         kinds = {"road_id": str, "direction": str, "hcurve_no": "int64", "below_min_radius": bool,
@@ -254,7 +254,7 @@ class NetworkResult:
     extra_notes: pd.DataFrame | None = None  # per-road notes made before the chunks (substituted speeds)
 
     def _read(self, name: str) -> pd.DataFrame:
-        from .sqlrun import parquet_relation
+        from ..core.sqlrun import parquet_relation
 
         files = self.work.files(name)
         if not files:
@@ -281,7 +281,7 @@ class NetworkResult:
         ids = sorted({str(r) for r in road_ids})
         if not ids:
             return {}
-        from .sqlrun import parquet_view
+        from ..core.sqlrun import parquet_view
 
         with duckdb.connect() as con:
             con.register("wanted", pd.DataFrame({"road_id": ids}))
@@ -358,9 +358,9 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
     ``work_dir`` holds the chunk results (a temporary folder, removed with the result, when
     not given); with ``resume`` the chunks already finished there for the same inputs and
     settings are reused."""
-    from .criteria import get_set
-    from .evaluate import evaluate
-    from .ingest import read_features
+    from ..evaluate.criteria import get_set
+    from ..evaluate.judge import evaluate
+    from ..ingest.readers import read_features
 
     progress = progress or Progress()
     timings: dict[str, float] = {}
@@ -519,7 +519,7 @@ def _run_dask(job: Job, todo: list[int], rows_of, work: WorkFolder, cfg: Config,
     """The chunks on a Dask cluster (``run.scheduler`` is its address): the workers compute and
     return each chunk's tables, which are written here, so no shared disk is needed (but the
     DEM, when one is used, must be readable at the same path on every worker)."""
-    from .errors import InputError
+    from ..core.errors import InputError
 
     try:
         from dask.distributed import Client, as_completed
@@ -563,7 +563,7 @@ def accounting(result: NetworkResult) -> dict:
 
 def network_summary(result: NetworkResult) -> pd.DataFrame:
     """Roads and km in and evaluated, and ground coverage, by road class (``sql/network_summary.sql``)."""
-    from .sqlrun import parquet_relation, sql_text
+    from ..core.sqlrun import parquet_relation, sql_text
 
     with duckdb.connect() as con:
         con.register("roads", result.road_table())
@@ -573,7 +573,7 @@ def network_summary(result: NetworkResult) -> pd.DataFrame:
 
 
 def _units_info(cfg: Config) -> dict:
-    from .units import OutputUnits
+    from ..core.units import OutputUnits
 
     u = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
     return {"system": u.system, "length": u.length_label, "speed": u.speed_label, "distance": u.distance_label,
@@ -589,8 +589,8 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
     (``.NAME.work``) until then, so that ``resume`` can reuse them after an
     interruption. Returns the run summary (also in ``run.json``).
     """
-    from .export import staging_folder, write_outputs
-    from .quality import data_quality
+    from ..outputs.export import staging_folder, write_outputs
+    from ..evaluate.quality import data_quality
 
     progress = progress or Progress()
     started = datetime.now(timezone.utc)
@@ -634,7 +634,7 @@ def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_
         finished = datetime.now(timezone.utc)
         summary["finished_utc"] = finished.isoformat(timespec="seconds")
         summary["total_seconds"] = round((finished - started).total_seconds(), 2)
-        from .export import write_run_json
+        from ..outputs.export import write_run_json
 
         write_run_json(tmp / "run.json", summary)
     shutil.rmtree(work_dir, ignore_errors=True)

@@ -56,7 +56,7 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.optimize import least_squares
 
-from .corridor import deconvolved_length
+from ..profile.corridor import deconvolved_length
 
 # ---------------------------------------------------------------- settings
 DEFAULTS = {

@@ -56,7 +56,7 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
     hidden &= np.isfinite(zq) & np.isfinite(zp)
     if not hidden.any():
         return None
-    from .profile import run_lengths
+    from ..profile.stations import run_lengths
 
     runs = run_lengths(hidden)
     dist = [0.0 if min(q[a], q[b - 1]) <= crest_pvi_m <= max(q[a], q[b - 1])

@@ -13,9 +13,9 @@ from dataclasses import dataclass
 import duckdb
 import pandas as pd
 
-from .config import Config
+from ..core.config import Config
 from .criteria import CriteriaSet
-from .sqlrun import sql_text
+from ..core.sqlrun import sql_text
 
 
 @dataclass
@@ -52,7 +52,7 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
     """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the columns
     each table needs). ``profiles`` and ``keypoints`` may be DataFrames or lists of Parquet files,
     which DuckDB reads as it goes without loading them whole."""
-    from .sqlrun import parquet_view
+    from ..core.sqlrun import parquet_view
 
     set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
     con = duckdb.connect()

@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
+from ..core.errors import InputError
 
 
 @contextlib.contextmanager
@@ -70,7 +70,7 @@ def write_profiles_from_work(path: Path, result, units) -> None:
     stations are never all in memory), in road order then chainage, in the run's units."""
     import duckdb
 
-    from .sqlrun import parquet_view, write_parquet_from
+    from ..core.sqlrun import parquet_view, write_parquet_from
 
     with duckdb.connect() as con:
         parquet_view(con, "stations", result.work.files("profiles"))
@@ -353,7 +353,7 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     import geopandas as gpd
     import shapely
 
-    from .profile import Polyline
+    from ..profile.stations import Polyline
 
     roads = result.roads
     t = roads.table.set_index("road_id", drop=False)
@@ -437,7 +437,7 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> list[d
     out rather than left half-written, and one curve's figure failing gives a placeholder on
     its page instead of losing the report."""
     from .report import build_report, curve_png, network_map, png_data_uri, report_pages, write_profiles_pdf
-    from .units import OutputUnits
+    from ..core.units import OutputUnits
 
     failures: list[dict] = []
     units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])

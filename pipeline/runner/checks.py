@@ -9,14 +9,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from .config import Config
+from ..core.config import Config
 
 
 def check_inputs(roads_path, ground_path, cfg: Config) -> dict:
     """What a run would find in the inputs. File-level faults raise ``InputError`` as in a run."""
-    from .batch import resolve_speeds
+    from .network import resolve_speeds
     from .evidence import examine, screen_speeds
-    from .ingest import DemGround, open_ground, read_roads
+    from ..ingest.readers import DemGround, open_ground, read_roads
 
     roads = read_roads(roads_path, cfg)
     ground = open_ground(ground_path, cfg, roads)
@@ -85,8 +85,8 @@ def _data_support(ground, spacing: list, cfg: Config) -> dict:
     """What the ground data can support, before a run (:mod:`pipeline.quality`): their own
     spacing (DEM cell, or ground points' median spacing), the shortest feature a profile at the
     run's station step resolves, and what they cannot judge."""
-    from .corridor import MAX_FILTER_CELLS, resolution_length_m
-    from .quality import cannot_judge
+    from ..profile.corridor import MAX_FILTER_CELLS, resolution_length_m
+    from ..evaluate.quality import cannot_judge
 
     kind = "dem" if getattr(ground, "kind", "") == "dem" else "points"
     v = np.array([x for x in spacing if x is not None and np.isfinite(x)], dtype=float)

@@ -32,8 +32,8 @@ import shapely
 from pyproj.crs import ProjectedCRS
 from pyproj.crs.coordinate_operation import UTMConversion
 
-from .config import Config
-from .errors import InputError
+from ..core.config import Config
+from ..core.errors import InputError
 
 VECTOR_SUFFIXES = {".gpkg", ".shp", ".geojson", ".json", ".fgb", ".gml", ".kml", ".sqlite"}
 DEM_SUFFIXES = {".tif", ".tiff", ".vrt", ".img", ".asc"}
@@ -351,7 +351,7 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
             f"{path}: no column {id_col!r} for the road identifier "
             f"(columns: {', '.join(map(str, frame.columns[:12]))}); set roads.id_column or --id-column"
         )
-    from .evidence import check_road_columns
+    from ..runner.evidence import check_road_columns
 
     column_notes = check_road_columns([c for c in frame.columns if c != "geometry"], cfg, path)
     if crs is None:
@@ -511,7 +511,7 @@ class PointGround:
 
 def open_ground(path: str | Path, cfg: Config, roads: Roads) -> DemGround | PointGround:
     """Open the ground model: a DEM raster or a file of ground points."""
-    from .units import metres_per
+    from ..core.units import metres_per
 
     path = check_file(path, "ground")
     factor = metres_per(cfg["ground.elevation_unit"])
@@ -580,7 +580,7 @@ def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 
     import rasterio
     from rasterio.windows import Window
 
-    from .profile import map_to_pixel
+    from ..profile.stations import map_to_pixel
 
     with rasterio.open(dem.path) as src:
         cols, rows = map_to_pixel(src.transform, x, y)

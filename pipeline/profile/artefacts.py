@@ -106,7 +106,7 @@ def detect(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, sigma: float,
 
     ``known`` are chainage ranges of structures to mask explicitly, each with a label.
     """
-    from .profile import run_lengths
+    from .stations import run_lengths
 
     opts = DEFAULTS | (opts or {})
     ch = np.asarray(chainage_m, dtype=float)

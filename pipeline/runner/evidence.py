@@ -26,8 +26,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .config import Config
-from .errors import InputError
+from ..core.config import Config
+from ..core.errors import InputError
 
 CHECKS = ("speed_unit", "elevation_unit", "coverage", "grades")
 
@@ -105,7 +105,7 @@ def screen_speeds(table: pd.DataFrame, cfg: Config) -> np.ndarray:
     """Blank impossible speeds in ``table["speed_raw"]`` (not positive, not finite, or above
     200 km/h) so they are substituted, and return what each road's column held, as text
     (``None`` where the value was usable)."""
-    from .units import kmh_per_mph
+    from ..core.units import kmh_per_mph
 
     raw = table["speed_raw"].to_numpy(dtype=float)
     factor = kmh_per_mph() if speed_unit(cfg) == "mph" else 1.0
@@ -125,7 +125,7 @@ def speed_notes(table: pd.DataFrame, found: np.ndarray, cfg: Config) -> pd.DataF
     if cfg["speed.source"] == "predicted":
         return pd.DataFrame(columns=["road_id", "note", "from_m", "to_m", "detail"])
     us = cfg["output.units"] == "us"
-    from .units import kmh_per_mph
+    from ..core.units import kmh_per_mph
 
     def show(kmh):
         return f"{kmh / kmh_per_mph():.1f} mph" if us else f"{kmh:g} km/h"
@@ -182,8 +182,8 @@ def dem_elevation_unit(dem) -> tuple[str | None, str]:
 
 def settle_elevation_unit(ground, cfg: Config, notes: list[str]) -> dict:
     """Use the DEM's own elevation unit; refuse an explicit setting that contradicts it."""
-    from .ingest import DemGround
-    from .units import metres_per
+    from ..ingest.readers import DemGround
+    from ..core.units import metres_per
 
     declared = cfg["ground.elevation_unit"]
     info = {"elevation_unit": declared, "elevation_unit_source": "setting" if "ground.elevation_unit"
@@ -216,7 +216,7 @@ def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: in
     file) and measure coverage and grades: ``coverage_pct``, ``roads_without_ground`` (ids),
     ``grade_pct`` (percentiles 50, 90, 99 of |grade| over ``step_m``), ``steep_pct`` (share of
     length steeper than ``artefacts.max_road_grade_pct``) and ``sampled_km``."""
-    from .profile import station_chainages
+    from ..profile.stations import station_chainages
     from .roadwork import GroundSampler
 
     t = roads.table
@@ -255,7 +255,7 @@ def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: in
 
 def likely_cause(roads, ground) -> str:
     """The likeliest reason ground data miss the roads, for the refusal message."""
-    from .ingest import PointGround
+    from ..ingest.readers import PointGround
 
     if isinstance(ground, PointGround) and ground.mode == "xy" and ground.rows:
         x, y = ground.arrays["x"], ground.arrays["y"]

@@ -9,8 +9,8 @@ from pathlib import Path
 
 from .errors import InputError
 
-_ROOT = Path(__file__).resolve().parent.parent
-_PACKAGE = Path(__file__).resolve().parent
+_ROOT = Path(__file__).resolve().parents[2]
+_PACKAGE = Path(__file__).resolve().parents[1]
 _INSTALLED = {"sql": "_sql", "data_samples": "_samples"}
 
 

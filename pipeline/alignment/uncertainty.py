@@ -35,8 +35,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .alignment import Alignment, model_z
-from .sight import SightRules, crest_sight_formula, sag_sight_formula
+from .fit import Alignment, model_z
+from ..sight.lines import SightRules, crest_sight_formula, sag_sight_formula
 
 
 def residual_noise(r: np.ndarray) -> tuple[float, float]:

@@ -232,7 +232,7 @@ def _check_value(key: str, value: Any, source: str) -> None:
     elif key == "roads.speed_unit" and value not in ("", "kmh", "mph"):
         bad("must be 'kmh' or 'mph' (or empty: that of output.units)")
     elif key == "checks.override":
-        from .evidence import CHECKS
+        from ..runner.evidence import CHECKS
 
         unknown = [v for v in value if v not in CHECKS]
         if unknown:

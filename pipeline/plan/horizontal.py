@@ -55,7 +55,7 @@ def heading_curvature(line, step_m: float, smooth_m: float, poly=None
     minus smoothed) times the noise gain of the derivative filter."""
     from scipy.signal import savgol_coeffs, savgol_filter
 
-    from .profile import Polyline
+    from ..profile.stations import Polyline
 
     poly = poly or Polyline(line)
     length = poly.length
@@ -112,7 +112,7 @@ def _detect(line, opts: dict, smooth_m: float, poly) -> list[dict]:
     sign = (np.sign(curv) * (np.abs(curv) > k_min)).astype(int)
     # a bend briefly dipping under the threshold (noise) is still one bend
     gap = int(round(opts["smooth_m"] / (ch[1] - ch[0])))
-    from .profile import run_lengths
+    from ..profile.stations import run_lengths
 
     for a, b in run_lengths(sign == 0):
         if 0 < a and b < len(sign) and b - a <= gap and sign[a - 1] == sign[b]:
@@ -161,7 +161,7 @@ def horizontal_curves(line, opts: dict | None = None, poly=None) -> pd.DataFrame
     over three times that, it finds long flat curves that noise breaks up at the first scale.
     A coarse-scale curve replaces the fine-scale pieces inside it when they all turn its way.
     """
-    from .profile import Polyline
+    from ..profile.stations import Polyline
 
     opts = DEFAULTS | (opts or {})
     poly = poly or Polyline(line)

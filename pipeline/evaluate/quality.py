@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .corridor import dem_vertical_error_m
+from ..profile.corridor import dem_vertical_error_m
 
 
 def _median(values) -> float | None:

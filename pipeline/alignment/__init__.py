@@ -1,0 +1,1 @@
+"""The vertical alignment recovered from a profile, with each curve's uncertainty."""

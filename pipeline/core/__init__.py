@@ -1,0 +1,1 @@
+"""Settings, units, errors and the bundled resources every stage uses."""

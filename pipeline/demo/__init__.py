@@ -1,0 +1,1 @@
+"""Known geometry for the bundled demo data and the benchmarks (not used by an audit)."""

@@ -1,0 +1,1 @@
+"""Criteria sets and the SQL rules that judge every curve and station."""

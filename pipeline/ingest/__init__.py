@@ -1,0 +1,1 @@
+"""Input readers: road centrelines, ground models (DEM or points), structures and junctions."""

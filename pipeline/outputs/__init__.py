@@ -1,0 +1,1 @@
+"""Output files: tables, workbook, GeoPackage, report and field sheets."""

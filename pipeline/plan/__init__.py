@@ -1,0 +1,1 @@
+"""Horizontal curves of the centreline and operating speeds."""

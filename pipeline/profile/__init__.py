@@ -1,0 +1,1 @@
+"""Stations along each road and the ground elevation read there, with artefacts masked."""
