@@ -22,7 +22,7 @@ from conftest import write_dem, write_roads_gpkg
 from pipeline.alignment.fit import fit_profile
 from pipeline.runner.roadwork import curve_uncertainties
 from pipeline.sight.lines import SightRules
-from pipeline.alignment.uncertainty import sight_sd
+from pipeline.sight.spread import sight_sd
 
 X0, Y0 = 500000.0, 5300000.0
 LINE = LineString([(X0, Y0), (X0 + 1200, Y0)])

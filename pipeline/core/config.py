@@ -17,6 +17,9 @@ from typing import Any
 
 from .errors import InputError
 
+# checks on the inputs that checks.override may name (see pipeline.runner.evidence)
+CHECKS = ("speed_unit", "elevation_unit", "coverage", "grades")
+
 # section -> key -> (default, description). The description is what
 # ``sightaudit init`` writes above the key in the example config.
 SPEC: dict[str, dict[str, tuple[Any, str]]] = {
@@ -232,8 +235,6 @@ def _check_value(key: str, value: Any, source: str) -> None:
     elif key == "roads.speed_unit" and value not in ("", "kmh", "mph"):
         bad("must be 'kmh' or 'mph' (or empty: that of output.units)")
     elif key == "checks.override":
-        from ..runner.evidence import CHECKS
-
         unknown = [v for v in value if v not in CHECKS]
         if unknown:
             bad(f"has unknown check(s) {', '.join(map(str, unknown))}; use {', '.join(CHECKS)}")

@@ -351,7 +351,7 @@ def read_roads(path: str | Path, cfg: Config) -> Roads:
             f"{path}: no column {id_col!r} for the road identifier "
             f"(columns: {', '.join(map(str, frame.columns[:12]))}); set roads.id_column or --id-column"
         )
-    from ..runner.evidence import check_road_columns
+    from .columns import check_road_columns
 
     column_notes = check_road_columns([c for c in frame.columns if c != "geometry"], cfg, path)
     if crs is None:
@@ -542,6 +542,14 @@ def _open_dem(path: Path, cfg: Config, roads: Roads, factor: float) -> DemGround
         raise InputError(f"{path}: cannot be read as a raster ({_short(exc)}); check the format") from None
 
 
+def map_to_pixel(affine, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Fractional (column, row) of map coordinates through the inverse of a raster's affine."""
+    inv = ~affine
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    return inv.a * x + inv.b * y + inv.c, inv.d * x + inv.e * y + inv.f
+
+
 def dem_cell_m(dem: DemGround, affine, y_mid: float) -> float:
     """Size (m) of a DEM cell: the geometric mean of the affine's pixel width and height, in
     the CRS's linear unit converted to metres, or for a geographic CRS in degrees at latitude
@@ -580,7 +588,6 @@ def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 
     import rasterio
     from rasterio.windows import Window
 
-    from ..profile.stations import map_to_pixel
 
     with rasterio.open(dem.path) as src:
         cols, rows = map_to_pixel(src.transform, x, y)

@@ -23,6 +23,8 @@ from __future__ import annotations
 import numpy as np
 import shapely
 
+from ..ingest.readers import map_to_pixel
+
 # ground_flag values, in profiles.parquet as text ("masked": an artefact, see pipeline.artefacts)
 MEASURED, FILLED, MISSING, MASKED = 0, 1, 2, 3
 FLAG_NAMES = np.array(["measured", "filled", "missing", "masked"], dtype=object)
@@ -100,14 +102,6 @@ class Polyline:
         side = np.sign(abj[:, 0] * rel[:, 1] - abj[:, 1] * rel[:, 0])
         side[side == 0] = 1.0
         return chain, dist[rows, j] * side
-
-
-def map_to_pixel(affine, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Fractional (column, row) of map coordinates through the inverse of a raster's affine."""
-    inv = ~affine
-    x = np.asarray(x, dtype=float)
-    y = np.asarray(y, dtype=float)
-    return inv.a * x + inv.b * y + inv.c, inv.d * x + inv.e * y + inv.f
 
 
 def bilinear(array: np.ndarray, affine, x: np.ndarray, y: np.ndarray) -> np.ndarray:
