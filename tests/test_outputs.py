@@ -1,4 +1,4 @@
-"""The output contract (DESIGN.md): every file, its columns, and that GIS and spreadsheet
+"""The output contract (CURVE_CONTRACT and DEFICIENCY_CONTRACT in pipeline.outputs.export): every file, its columns, and that GIS and spreadsheet
 readers take them (geopandas/pyogrio, openpyxl, pyarrow as references)."""
 
 from __future__ import annotations

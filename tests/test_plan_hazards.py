@@ -24,7 +24,7 @@ def f_at(cs, v):
 
 
 def test_minimum_radius_values():
-    """R (REFERENCES.md): unrounded minimum radius at e = 8 %: 60 km/h 113.4 m, 80 km/h 229.1 m,
+    """R (AASHTO Green Book 2018 ch. 3, R = V^2 / (127 (e + f)), recomputed): unrounded minimum radius at e = 8 %: 60 km/h 113.4 m, 80 km/h 229.1 m,
     100 km/h 393.7 m; 50 mph 757.6 ft, 60 mph 1200.0 ft (f from the shipped tables: C at these
     speeds)."""
     for v, ref in ((60, 113.4), (80, 229.1), (100, 393.7)):
@@ -34,7 +34,7 @@ def test_minimum_radius_values():
 
 
 def test_sight_line_offset_checks():
-    """R (REFERENCES.md, HSO = R (1 - cos(28.65 S / R)), TxDOT RDM 4.7.9 form): R = 1150 ft,
+    """R (HSO = R (1 - cos(28.65 S / R)), AASHTO Green Book 2018 ch. 3, in US units): R = 1150 ft,
     S = 425 ft gives 19.58 ft; R = 2000 ft, S = 570 ft gives 20.27 ft."""
     assert sight_line_offset(1150.0, 425.0) == pytest.approx(19.58, abs=0.005)
     assert sight_line_offset(2000.0, 570.0) == pytest.approx(20.27, abs=0.005)
@@ -71,7 +71,7 @@ def test_circle_fit_matches_exact_circle():
 
 
 def test_operating_speed_equations():
-    """FHWA-RD-99-171 equations (REFERENCES.md; recalled, to confirm) at hand-computed points:
+    """FHWA-RD-99-171 equations (Fitzpatrick et al. 2000; recalled from memory, to confirm) at hand-computed points:
     R = 200 m: -5 % grade 102.10 - 3077.13/200 = 86.7144; -2 %: 105.98 - 3709.90/200 = 87.4305;
     +2 %: 104.82 - 3574.51/200 = 86.9475; +6 %: 96.61 - 2752.19/200 = 82.8491;
     with a sag: 105.32 - 3438.19/200 = 88.1291; with a limited-sight crest: 103.24 -

@@ -19,6 +19,7 @@ from conftest import write_roads_gpkg
 from prism import parabolic_profile, prism_dem
 from pipeline.core.config import load_config
 from pipeline.core.sqlrun import sql_text
+from pipeline.evaluate.formulas import register_formulas
 
 # AASHTO Green Book (2018) Table 3-1, metric: design SSD 130 m at 80 km/h
 SSD_80 = 130.0
@@ -189,6 +190,7 @@ def test_normal_cdf_macro_matches_scipy():
     scipy.stats.norm.cdf: absolute error below 1e-6 (A&S give 1.5e-7 for erf)."""
     z = np.linspace(-8, 8, 321)
     with duckdb.connect() as con:
+        register_formulas(con)
         con.sql(sql_text("criteria_macros"))
         con.register("zs", pd.DataFrame({"z": z}))
         got = con.sql("SELECT normal_cdf(z) AS p FROM zs ORDER BY z").df()["p"].to_numpy()

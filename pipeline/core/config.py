@@ -10,8 +10,10 @@ says otherwise.
 
 from __future__ import annotations
 
+import copy
 import difflib
 import tomllib
+from dataclasses import asdict, field, make_dataclass
 from pathlib import Path
 from typing import Any
 
@@ -293,8 +295,6 @@ class Config:
 
     def copy_with(self, values: dict[str, Any]) -> "Config":
         """A copy with some settings changed (``{"section.key": value}``)."""
-        import copy
-
         other = copy.deepcopy(self)
         for dotted, value in values.items():
             other.set(dotted, value, "internal")
@@ -360,3 +360,69 @@ def example_toml() -> str:
             lines.append(f"# {key} = {_toml_value(default)}")
         lines.append("")
     return "\n".join(lines)
+
+
+# ------------------------------------------------------------------ typed settings
+def section_defaults(section: str) -> dict[str, Any]:
+    """The default of every key of ``section``, from :data:`SPEC` (the one place defaults live)."""
+    return {k: copy.deepcopy(v[0]) for k, v in SPEC[section].items()}
+
+
+def _section_type(section: str) -> type:
+    """A frozen dataclass with one typed field per key of ``section``, defaults from SPEC and the
+    description in each field's ``metadata['help']``."""
+    fields = []
+    for key, (default, desc) in SPEC[section].items():
+        if isinstance(default, (list, dict)):
+            f = field(default_factory=lambda d=default: copy.deepcopy(d), metadata={"help": desc})
+        else:
+            f = field(default=default, metadata={"help": desc})
+        fields.append((key, type(default), f))
+    return make_dataclass(section.capitalize() + "Settings", fields, frozen=True)
+
+
+SECTION_TYPES: dict[str, type] = {s: _section_type(s) for s in SPEC}
+
+
+def _settings_to_config(self) -> Config:
+    """The run settings these typed settings stand for (every value marked as set where it
+    differs from its default)."""
+    cfg = Config()
+    values = {s: {k: v for k, v in asdict(getattr(self, s)).items() if v != SPEC[s][k][0]} for s in SPEC}
+    cfg.update({s: kv for s, kv in values.items() if kv}, "settings")
+    cfg.apply_unit_defaults()
+    return cfg
+
+
+def _settings_from_config(cls, cfg: Config) -> "Settings":
+    """Typed settings holding the values of a run's :class:`Config`."""
+    d = cfg.as_dict()
+    return cls(**{s: SECTION_TYPES[s](**d[s]) for s in SPEC})
+
+
+def _settings_load(cls, path: str | Path | None = None, **overrides: Any) -> "Settings":
+    """Defaults, then a TOML file, then ``overrides`` given as ``section__key=value``."""
+    dotted = {k.replace("__", "."): v for k, v in overrides.items()}
+    return cls.from_config(load_config(path, dotted))
+
+
+def _settings_replace(self, **changes: Any) -> "Settings":
+    """A copy with some values changed, given as ``section__key=value``; checked like a file."""
+    cfg = self.to_config()
+    for k, v in changes.items():
+        cfg.set(k.replace("__", "."), v, "settings")
+    return type(self).from_config(cfg)
+
+
+Settings = make_dataclass(
+    "Settings",
+    [(s, t, field(default_factory=t)) for s, t in SECTION_TYPES.items()],
+    frozen=True,
+    namespace={"to_config": _settings_to_config, "from_config": classmethod(_settings_from_config),
+               "load": classmethod(_settings_load), "replace": _settings_replace,
+               "__doc__": "Every setting of an audit, typed and grouped by section (``Settings().alignment."
+                          "min_tangent_m``); the defaults and descriptions are those of :data:`SPEC`. "
+                          "``Settings.load(path, section__key=value)`` reads a TOML file and overrides; "
+                          "``settings.replace(section__key=value)`` changes values, checked as in a file."},
+)
+Settings.__module__ = __name__

@@ -34,6 +34,8 @@ import pandas as pd
 from ..core.errors import InputError
 from ..core.resources import sql_dir
 from ..core.units import kmh_per_mph, metres_per
+from ..sight.lines import SightRules
+from .formulas import k_round, round_up, speed_for_sight, ssd_level, ssd_on_grade
 
 SET_COLUMNS = ["name", "title", "source", "edition", "units", "eye_height", "object_height", "headlight_height",
                "beam_angle_deg", "reaction_time_s", "deceleration", "gravity", "speed_coef", "braking_coef",
@@ -69,36 +71,40 @@ class CriteriaSet:
         return 1.0 if self.metric else kmh_per_mph()
 
     def sight_rules(self):
-        from ..sight.lines import SightRules
-
         f = self.length_to_m
         p = self.params
         return SightRules(eye_height_m=p["eye_height"] * f, object_height_m=p["object_height"] * f,
                           headlight_height_m=p["headlight_height"] * f, beam_angle_deg=p["beam_angle_deg"],
                           lookahead_m=p["lookahead"] * f)
 
-    # --- the set's formulas, in its own units (used by tests and the CLI; SQL mirrors them)
+    # --- the set's formulas, in its own units (pipeline.evaluate.formulas, shared with the SQL)
     def ssd_calculated(self, speed, grade=None):
         """Calculated (unrounded) SSD at ``speed`` (set units), level or on ``grade`` (fraction)."""
         p = self.params
-        v = np.asarray(speed, dtype=float)
-        react = p["speed_coef"] * v * p["reaction_time_s"]
         if grade is None:
-            return react + p["braking_coef"] * v**2 / p["deceleration"]
-        g = np.asarray(grade, dtype=float)
-        return react + v**2 / (p["grade_coef"] * (p["deceleration"] / p["gravity"] + g))
+            return ssd_level(speed, p["reaction_time_s"], p["deceleration"], p["speed_coef"], p["braking_coef"])
+        return ssd_on_grade(speed, p["reaction_time_s"], p["deceleration"], grade, p["gravity"], p["speed_coef"],
+                            p["grade_coef"])
 
-    def ssd_design(self, speed):
-        """Design SSD: the table at a tabulated speed, else the calculated value rounded up."""
-        v = np.atleast_1d(np.asarray(speed, dtype=float))
-        step = self.params["rounding_step"]
-        out = np.ceil(self.ssd_calculated(v) / step - 1e-9) * step
-        tab = self.table.set_index("speed")["ssd_design"]
+    def _tabulated(self, v: np.ndarray, out: np.ndarray, column: str) -> np.ndarray:
+        """``out`` with the table's ``column`` wherever ``v`` is a tabulated speed."""
+        tab = self.table.set_index("speed")[column]
+        speeds = tab.index.to_numpy(dtype=float)
         for i, vi in enumerate(v):
-            hit = np.isclose(tab.index.to_numpy(dtype=float), vi, atol=1e-6)
+            hit = np.isclose(speeds, vi, atol=1e-6)
             if hit.any():
                 out[i] = float(tab.to_numpy()[hit][0])
-        return out if np.ndim(speed) else float(out[0])
+        return out
+
+    def ssd_design(self, speed, grade=None):
+        """Design SSD: on the level, the table at a tabulated speed, else the calculated value
+        rounded up to the set's step; on ``grade`` (fraction, in the direction of travel), the
+        calculated value on that grade rounded up (the tables are for level roads)."""
+        v = np.atleast_1d(np.asarray(speed, dtype=float))
+        out = np.atleast_1d(round_up(self.ssd_calculated(v, grade), self.params["rounding_step"])).astype(float)
+        if grade is None:
+            out = self._tabulated(v, out, "ssd_design")
+        return out if np.ndim(speed) or np.ndim(grade) else float(out[0])
 
     def k_design(self, speed, kind: str):
         """Design K (set units) for a crest or sag: the table, else the formula on the design SSD."""
@@ -109,26 +115,19 @@ class CriteriaSet:
             k = s**2 / p["crest_k_const"]
         else:
             k = s**2 / (p["sag_k_const"] + p["sag_k_per_s"] * s)
-        out = np.ceil(np.round(k, 1) - 1e-9)
-        col = "crest_k" if kind == "crest" else "sag_k"
-        tab = self.table.set_index("speed")[col]
-        for i, vi in enumerate(v):
-            hit = np.isclose(tab.index.to_numpy(dtype=float), vi, atol=1e-6)
-            if hit.any():
-                out[i] = float(tab.to_numpy()[hit][0])
+        out = self._tabulated(v, k_round(k), "crest_k" if kind == "crest" else "sag_k")
         return out if np.ndim(speed) else float(out[0])
 
     def supported_speed(self, sight, grade=None):
         """Highest speed (set units) whose calculated SSD the sight distance meets: the
         positive root of the SSD formula solved for V."""
         p = self.params
-        S = np.asarray(sight, dtype=float)
         b = p["speed_coef"] * p["reaction_time_s"]
         if grade is None:
             a = p["braking_coef"] / p["deceleration"]
         else:
             a = 1.0 / (p["grade_coef"] * (p["deceleration"] / p["gravity"] + np.asarray(grade, dtype=float)))
-        return (-b + np.sqrt(b * b + 4 * a * S)) / (2 * a)
+        return speed_for_sight(sight, b, a)
 
 
 def _read_csv(path: Path, what: str) -> pd.DataFrame:

@@ -15,6 +15,7 @@ import pandas as pd
 
 from ..core.config import Config
 from .criteria import CriteriaSet
+from .formulas import register_formulas
 from ..core.sqlrun import sql_text
 
 
@@ -65,6 +66,7 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
                 parquet_view(con, name, frame)
             else:
                 con.register(name, frame)
+        register_formulas(con)
         for name in ("criteria_macros", "evaluate", "inventory"):
             con.sql(sql_text(name))
         curve_eval = con.sql("SELECT * FROM curve_eval ORDER BY road_id, curve_no").df()

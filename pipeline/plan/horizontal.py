@@ -40,8 +40,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-DEFAULTS = {"step_m": 5.0, "smooth_m": 50.0, "max_radius_m": 3000.0, "min_length_m": 20.0,
-            "min_deflection_deg": 3.0}
+from ..core.config import section_defaults
+
+# the [plan] settings' defaults, and the station step of the heading analysis
+DEFAULTS = {k: v for k, v in section_defaults("plan").items() if k in ("smooth_m", "max_radius_m", "min_length_m",
+                                                                      "min_deflection_deg")} | {"step_m": 5.0}
 
 HCURVE_COLUMNS = ["hcurve_no", "start_m", "end_m", "length_m", "radius_m", "deflection_deg", "direction",
                   "fit_rmse_m"]

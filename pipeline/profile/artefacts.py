@@ -3,7 +3,7 @@
 A bare-earth DEM removes bridge decks and shows the valley floor beneath, so a
 profile dips sharply at a bridge; hydrologically conditioned DEMs notch
 embankments at culverts; where a centreline brushes a wall, cliff or building a
-single sample can be metres off (ground-data pitfalls listed in REFERENCES.md).
+single sample can be metres off.
 None of these is road geometry, and each would otherwise become a false curve or
 a false deficiency. Detected artefacts are masked (the fit bridges over them,
 as the road does) and reported with their chainage range.
@@ -33,8 +33,9 @@ from __future__ import annotations
 
 import numpy as np
 
-DEFAULTS = {"spike_m": 0.5, "max_grade_pct": 20.0, "min_k": 1.0, "max_width_m": 150.0,
-            "max_road_grade_pct": 25.0}
+from ..core.config import section_defaults
+
+DEFAULTS = section_defaults("artefacts")
 
 
 def _neighbour_prediction(z: np.ndarray, k_max: int = 3) -> np.ndarray:

@@ -191,32 +191,12 @@ def carriageway_offsets(section_z: np.ndarray, offsets_m: np.ndarray, station_st
     averaged over ``along_m`` of road; the argmin is smoothed by a running median over the
     same length.
     """
-    Z = np.asarray(section_z, dtype=float)
     o = np.asarray(offsets_m, dtype=float)
     do = float(o[1] - o[0])
-    slope = np.abs(np.gradient(Z, do, axis=1))
-    finite = np.isfinite(slope)
-    s0 = np.where(finite, slope, 0.0)
     k = max(int(round(width_m / do)), 1)
-    mean_in = uniform_filter1d(s0, k, axis=1, mode="nearest")
-    n_in = uniform_filter1d(finite.astype(float), k, axis=1, mode="nearest")
-    inside = np.where(n_in > 0.5, mean_in / np.maximum(n_in, 1e-9), np.nan)
-    shift = max(int(round(0.75 * width_m / do)), 1)
-    flank = max(k // 2, 1)
-    fl = uniform_filter1d(s0, flank, axis=1, mode="nearest")
-    nf = uniform_filter1d(finite.astype(float), flank, axis=1, mode="nearest")
-    side = np.where(nf > 0.5, fl / np.maximum(nf, 1e-9), np.nan)
-    left = np.full_like(side, np.nan)
-    right = np.full_like(side, np.nan)
-    left[:, shift:] = side[:, :-shift]
-    right[:, :-shift] = side[:, shift:]
-    outside = 0.5 * (np.where(np.isfinite(left), left, 0.0) + np.where(np.isfinite(right), right, 0.0))
-    cost = inside - outside + closeness * np.abs(o)[None, :]
+    cost = platform_cost(np.asarray(section_z, dtype=float), do, k) + closeness * np.abs(o)[None, :]
     n_along = max(int(round(along_m / station_step_m)), 1)
-    valid = np.isfinite(cost)
-    c0 = uniform_filter1d(np.where(valid, cost, 0.0), n_along, axis=0, mode="nearest")
-    nv = uniform_filter1d(valid.astype(float), n_along, axis=0, mode="nearest")
-    smooth = np.where(nv > 0.3, c0 / np.maximum(nv, 1e-9), np.inf)
+    smooth = _mean_along(cost, n_along)
     # offsets whose window runs off the sampled corridor cannot be judged
     half = k // 2
     smooth[:, :half] = np.inf
@@ -227,6 +207,37 @@ def carriageway_offsets(section_z: np.ndarray, offsets_m: np.ndarray, station_st
     if len(off) > 2:
         off = median_filter(off, size=n_along | 1, mode="nearest")
     return off
+
+
+def _windowed_mean(values: np.ndarray, size: int, axis: int, min_share: float) -> np.ndarray:
+    """Running mean of the finite values over ``size`` samples along ``axis``; NaN where fewer
+    than ``min_share`` of the window is finite."""
+    finite = np.isfinite(values)
+    total = uniform_filter1d(np.where(finite, values, 0.0), size, axis=axis, mode="nearest")
+    share = uniform_filter1d(finite.astype(float), size, axis=axis, mode="nearest")
+    return np.where(share > min_share, total / np.maximum(share, 1e-9), np.nan)
+
+
+def platform_cost(section_z: np.ndarray, offset_step_m: float, width_samples: int) -> np.ndarray:
+    """Cost of taking each offset as the carriageway's centre, per station (see
+    :func:`carriageway_offsets`): the mean absolute cross-slope over the band of
+    ``width_samples`` samples, less the mean of the two flanks beyond it."""
+    slope = np.abs(np.gradient(section_z, offset_step_m, axis=1))
+    inside = _windowed_mean(slope, width_samples, 1, 0.5)
+    side = _windowed_mean(slope, max(width_samples // 2, 1), 1, 0.5)
+    shift = max(int(round(0.75 * width_samples)), 1)
+    left = np.full_like(side, np.nan)
+    right = np.full_like(side, np.nan)
+    left[:, shift:] = side[:, :-shift]
+    right[:, :-shift] = side[:, shift:]
+    outside = 0.5 * (np.where(np.isfinite(left), left, 0.0) + np.where(np.isfinite(right), right, 0.0))
+    return inside - outside
+
+
+def _mean_along(cost: np.ndarray, n_along: int) -> np.ndarray:
+    """The cost averaged over ``n_along`` stations (inf where too few are known)."""
+    smooth = _windowed_mean(cost, n_along, 0, 0.3)
+    return np.where(np.isfinite(smooth), smooth, np.inf)
 
 
 def dem_vertical_error_m(cell_m: float | None) -> float:
