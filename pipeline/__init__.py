@@ -1,13 +1,38 @@
-"""sightaudit: screening audit of rural road networks for stopping-sight-distance
-shortfalls on crest and sag vertical curves, from open centreline and elevation data.
+"""sightaudit: screening audit of rural road networks for stopping-sight-distance shortfalls on
+crest and sag vertical curves, from open centreline and elevation data.
 
-Each stage of the audit is a module with plain functions:
+The public interface (:mod:`pipeline.api`)::
 
-- :mod:`pipeline.ingest`    read roads and ground data, choose a metric working CRS
-- :mod:`pipeline.profile`   chainage, stations and ground elevation along each road
-- :mod:`pipeline.batch`     run the stages over a network and account for every road
-- :mod:`pipeline.export`    write the output files
-- :mod:`pipeline.cli`       the ``sightaudit`` command (a thin layer over the above)
+    import pipeline
+    result = pipeline.audit("roads.gpkg", "dem.tif")      # or a GeoDataFrame, a points DataFrame
+    result.deficiencies                                     # the ranked inventory, a DataFrame
+    result.write("audit_out")                               # every output file
+
+- :func:`audit` runs the whole audit and returns an :class:`AuditResult`;
+- :func:`validate` checks the inputs without running;
+- :class:`Settings` holds every setting, typed, with its default.
+
+The stages, in the order the data flow (each a subpackage): ``ingest`` (roads, ground,
+features), ``profile`` (stations, ground read on the road, artefacts), ``alignment`` (tangents
+and parabolic curves, their uncertainty), ``sight`` (line of sight, headlight reach, hidden
+zones), ``plan`` (horizontal curves, operating speed), ``evaluate`` (criteria and the SQL
+rules, inventory), ``outputs`` (tables, workbook, GeoPackage, report), and ``runner`` (the
+network: chunks, engines, work folder); ``core`` holds settings, units and errors.
 """
 
 __version__ = "0.1.0"
+
+__all__ = ["audit", "validate", "AuditResult", "Settings", "__version__"]
+
+
+def __getattr__(name):
+    # the public names load on first use, so that `import pipeline` (and the command's start) stays light
+    if name in ("audit", "validate", "AuditResult"):
+        from . import api
+
+        return getattr(api, name)
+    if name == "Settings":
+        from .core.config import Settings
+
+        return Settings
+    raise AttributeError(f"module 'pipeline' has no attribute {name!r}")

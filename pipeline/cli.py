@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import shutil
 import sys
 import time
 from pathlib import Path
@@ -198,13 +199,21 @@ def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
 
 
 def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> int:
-    from .runner.network import run_audit
+    from .api import audit
     from .core.config import load_config
+    from .runner.network import worker_pool
 
     cfg = load_config(config, overrides)
     out = Path(args.out)
-    summary = run_audit(roads, ground, cfg, out, progress=_progress(args), command=sys.argv[1:],
-                        resume=getattr(args, "resume", False))
+    # chunk results wait beside the output folder until the outputs are complete (for --resume)
+    work_dir = out.resolve().parent / f".{out.resolve().name}.work"
+    progress = _progress(args)
+    with worker_pool(cfg) as pool:
+        result = audit(roads, ground, cfg, progress=progress, work_dir=work_dir,
+                       resume=getattr(args, "resume", False), pool=pool, command=sys.argv[1:])
+        with progress.stage("writing outputs"):
+            summary = result.write(out, pool)
+    shutil.rmtree(work_dir, ignore_errors=True)
     _print_summary(summary, out, args.quiet)
     failed = summary.get("output_failures") or []
     if failed:
