@@ -110,7 +110,9 @@ class AuditResult:
     @property
     def profiles(self) -> pd.DataFrame:
         """Every station of every evaluated road (``profiles.parquet``), read on first use."""
-        return self._network.road_profiles(set(self._network.road_table()["road_id"]))
+        parts = self._network.road_profiles(set(self._network.road_table()["road_id"]))
+        order = [r for r in self._network.road_table()["road_id"] if r in parts]
+        return pd.concat([parts[r] for r in order], ignore_index=True) if order else pd.DataFrame()
 
     def write(self, out_dir: str | Path, pool=None) -> dict:
         """Write every output file into ``out_dir`` (made complete or not at all).
