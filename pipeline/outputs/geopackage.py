@@ -1,0 +1,79 @@
+"""The GeoPackage ``audit.gpkg``: the roads, curves, deficient stretches and horizontal curves.
+
+Every layer is in the roads' own CRS. Curves and stretches are cut from the
+centreline (held in the working CRS) by chainage and transformed back.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import shapely
+
+from ..profile.stations import Polyline
+from .tables import round_for_reading
+
+
+def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame,
+               hcurves: pd.DataFrame, units=None) -> None:
+    """Write the GeoPackage's layers.
+
+    Parameters
+    ----------
+    path : pathlib.Path
+        The ``.gpkg`` file to write.
+    result : NetworkResult
+        The run's result: the roads with their geometry in the source and working CRS.
+    curves : pandas.DataFrame
+        The curve table, internal units; drawn from PVC to PVT.
+    deficiencies : pandas.DataFrame
+        The deficiency table, internal units; each stretch drawn half a station
+        beyond its end stations.
+    hcurves : pandas.DataFrame
+        The horizontal curves, internal units; drawn from start to end.
+    units : OutputUnits, optional
+        The run's output units for the attributes; internal units without.
+
+    Returns
+    -------
+    None
+        Layers ``roads``, ``curves``, ``deficiencies`` and ``horizontal_curves``.
+    """
+    roads = result.roads
+    t = roads.table.set_index("road_id", drop=False)
+    crs = roads.source_crs
+    conv = (lambda f: round_for_reading(units.table(f))) if units is not None else (lambda f: f)
+    road_attrs = result.road_table()
+    gpd.GeoDataFrame(conv(road_attrs), geometry=list(t["geometry_src"].reindex(road_attrs["road_id"])), crs=crs) \
+        .to_file(path, layer="roads", driver="GPKG", engine="pyogrio")
+    cut = _centreline_cutter(roads, t)
+    step = result.step_m
+    for layer, frame, geom in (("curves", curves, cut(curves, "pvc_m", "pvt_m", 0.0)),
+                               ("deficiencies", deficiencies, cut(deficiencies, "from_m", "to_m", step / 2)),
+                               ("horizontal_curves", hcurves, cut(hcurves, "start_m", "end_m", 0.0))):
+        gpd.GeoDataFrame(conv(frame), geometry=geom, crs=crs).to_file(path, layer=layer, driver="GPKG",
+                                                                    engine="pyogrio")
+
+
+def _centreline_cutter(roads, t: pd.DataFrame):
+    """A function giving pieces of the working-CRS centrelines by chainage, back in the roads' CRS."""
+    crs = roads.source_crs
+    back = {k: roads.to_source(k) if roads.work_crs[k] is not crs else None for k in roads.work_crs}
+    polylines: dict[str, Polyline] = {}
+
+    def cut(frame: pd.DataFrame, a_col: str, b_col: str, pad: float) -> list:
+        out = []
+        for rid, a, b in zip(frame["road_id"], frame[a_col], frame[b_col]):
+            if rid not in polylines:
+                polylines[rid] = Polyline(t.at[rid, "geometry"])
+            xy = polylines[rid].cut(a - pad, b + pad)
+            tr = back[t.at[rid, "work_key"]]
+            if tr is not None:
+                xy = np.column_stack(tr.transform(xy[:, 0], xy[:, 1]))
+            out.append(shapely.linestrings(xy))
+        return out
+
+    return cut

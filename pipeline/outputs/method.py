@@ -1,0 +1,122 @@
+"""The words the workbook and the report share: the caution, the method and the priority formula.
+
+The priority score's formula is written here once, with the run's weights; the
+inventory SQL (``sql/inventory.sql``) computes exactly this, and the report, the
+workbook's Method sheet and the header note of ``priority_score`` all show it.
+"""
+
+from __future__ import annotations
+
+CAUTION_TEXT = ("Screening results only. Every finding must be confirmed by field survey and by a licensed engineer "
+                "before any decision; local design codes and agency policy govern over the published criteria "
+                "used here.")
+
+
+def priority_formula(cfg) -> str:
+    """The priority score's formula with the run's weights.
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's settings (``inventory.priority_weights``, ``inventory.hazard_weight``).
+
+    Returns
+    -------
+    str
+        ``priority_score = 100 * h * hidden + 100 * (w_s * f_shortfall + w_v * f_speed
+        + w_e * f_exposure) / (w_s + w_v + w_e)`` with the weights filled in.
+
+    Notes
+    -----
+    The score ranks the deficient stretches: the weighted mean of the three
+    factors of :func:`priority_terms` (each in 0-1) scaled to 0-100, plus
+    ``100 * h`` points where the crest hides a hazard.
+    """
+    w, h = cfg["inventory.priority_weights"], cfg["inventory.hazard_weight"]
+    return (f"priority_score = 100 * {h:g} * hidden + 100 * ({w['shortfall']:g} * f_shortfall + {w['speed']:g} * "
+            f"f_speed + {w['exposure']:g} * f_exposure) / {sum(w.values()):g}")
+
+
+def priority_terms(cfg) -> str:
+    """What the terms of the priority formula are.
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's settings (``inventory.aadt_ref``, the reference traffic).
+
+    Returns
+    -------
+    str
+        The definitions of ``hidden``, ``f_shortfall``, ``f_speed`` and ``f_exposure``.
+
+    Notes
+    -----
+    ``f_shortfall = shortfall / SSD``, ``f_speed = (V - V_supported) / 50 km/h`` and
+    ``f_exposure = ln(1 + AADT) / ln(1 + AADT_ref)``, each capped at 1.
+    """
+    return ("hidden = 1 where the crest hides a hazard (hidden_hazard not 'none'), else 0; f_shortfall = shortfall / "
+            "required SSD; f_speed = (speed judged at - supported speed) / 50 km/h; f_exposure = ln(1 + AADT) / "
+            f"ln(1 + {cfg['inventory.aadt_ref']:g}), 0 where AADT is unknown; each factor at most 1")
+
+
+def method_lines(result, cfg) -> list[tuple[str, str]]:
+    """The method and criteria, as (heading, text) lines for the workbook and the report.
+
+    Parameters
+    ----------
+    result : NetworkResult
+        The run's result; its criteria set gives the source, heights and braking.
+    cfg : Config
+        The run's settings (profile step, grade adjustment, severity bands, priority).
+
+    Returns
+    -------
+    list of (str, str)
+        The caution first, then the criteria set, the method of each stage, the
+        severity bands and the priority formula.
+
+    Notes
+    -----
+    The alignment is recovered by optimal segmentation with model selection by
+    the Bayesian information criterion; sight distance follows the line-of-sight
+    and headlight models of the AASHTO Green Book, chapter 3.
+
+    References
+    ----------
+    .. [1] Jackson, B. et al. (2005). An algorithm for optimal partitioning of data
+       on an interval. IEEE Signal Processing Letters 12(2), 105-108.
+    .. [2] Killick, R., Fearnhead, P. and Eckley, I. A. (2012). Optimal detection of
+       changepoints with a linear computational cost. JASA 107(500), 1590-1598.
+    .. [3] Schwarz, G. (1978). Estimating the dimension of a model. Annals of
+       Statistics 6(2), 461-464.
+    .. [4] AASHTO. A Policy on Geometric Design of Highways and Streets, chapter 3.
+    """
+    c = result.criteria.params
+    bands = cfg["inventory.severity_bands_kmh"]
+    return [
+        ("Caution", CAUTION_TEXT),
+        ("Criteria set", f"{c['name']}: {c['title']}"),
+        ("Source", str(c["source"])),
+        ("Edition", str(c["edition"])),
+        ("Source confidence", str(c["source_marks"])),
+        ("Heights", f"eye {c['eye_height']}, object {c['object_height']}, headlight {c['headlight_height']} "
+                    f"({'m' if c['units'] == 'metric' else 'ft'}); beam {c['beam_angle_deg']} degrees up"),
+        ("Braking", f"reaction time {c['reaction_time_s']} s, deceleration {c['deceleration']} "
+                    f"{'m/s2' if c['units'] == 'metric' else 'ft/s2'}"),
+        ("Required SSD", "design SSD of the criteria table at a tabulated speed; between rows the set's formula "
+                         "rounded up to its step" + (" on the grade of each station" if cfg["criteria.grade_adjusted"]
+                                                     else " (level road, as the K tables assume)")),
+        ("Profile", "ground elevation every " + f"{cfg['profile.step_m']:g} m along each centreline"),
+        ("Alignment", "tangents and symmetric parabolic curves recovered from the profile: optimal "
+                      "segmentation (Jackson et al. 2005; Killick et al. 2012), model selection by the Bayesian "
+                      "information criterion (Schwarz 1978), joint nonlinear least squares"),
+        ("Sight distance", "on the recovered alignment, both directions: line of sight from eye to object over "
+                           "crests, headlight reach on sags (AASHTO Green Book ch. 3); checked against the "
+                           "closed-form expressions"),
+        ("Deficient", "a curve whose available sight distance is below the required SSD in either direction; "
+                      "K below the table is reported separately (k_below_table)"),
+        ("Severity", f"speed gap below {bands[0]:g} km/h minor, {bands[0]:g}-{bands[1]:g} moderate, "
+                     f"over {bands[1]:g} severe"),
+        ("Priority score", f"{priority_formula(cfg)}; {priority_terms(cfg)}"),
+    ]

@@ -1,0 +1,35 @@
+"""The report's style sheet and script, and the placeholder for a figure that could not be drawn.
+
+The style prints to A4 or Letter, each deficient curve on a new page; the
+script records how many images loaded (``data-images-loaded`` on the body), for
+the browser check.
+"""
+
+CSS = """
+@page { size: A4; margin: 14mm; }
+body { font-family: "DejaVu Sans", Arial, sans-serif; font-size: 10.5pt; color: #1a1a1a; margin: 1.5em auto;
+       max-width: 1100px; line-height: 1.35; }
+h1 { font-size: 19pt; margin-bottom: 0.2em; } h2 { font-size: 14pt; border-bottom: 2px solid #3B1F5C;
+     padding-bottom: 2px; margin-top: 1.6em; } h3 { font-size: 12pt; margin: 0.4em 0; }
+.caution { border: 2px solid #C2452D; background: #FCEFEA; padding: 0.6em 0.9em; font-weight: bold; }
+.cards { display: flex; flex-wrap: wrap; gap: 0.6em; } .card { border: 1px solid #bbb; border-radius: 4px;
+        padding: 0.4em 0.8em; min-width: 8em; } .card b { display: block; font-size: 15pt; }
+table { border-collapse: collapse; width: 100%; font-size: 8.8pt; margin: 0.4em 0; }
+th, td { border: 1px solid #c8c8c8; padding: 2px 4px; text-align: left; vertical-align: top; }
+th { background: #DDE4EE; } td.n { text-align: right; font-variant-numeric: tabular-nums; }
+img { max-width: 100%; } .curve { page-break-before: always; break-before: page; }
+.facts td:first-child { width: 16em; color: #444; } .small { font-size: 8.5pt; color: #444; }
+.sev-minor { border-left: 6px solid #F4A259; } .sev-moderate { border-left: 6px solid #C2452D; }
+.sev-severe { border-left: 6px solid #3B1F5C; }
+@media print { body { max-width: none; margin: 0; } a { color: black; } }
+"""
+
+LOADED_JS = """window.addEventListener('load', function () {
+  var imgs = Array.prototype.slice.call(document.images);
+  var ok = imgs.filter(function (i) { return i.complete && i.naturalWidth > 0; }).length;
+  document.body.setAttribute('data-images-loaded', ok + '/' + imgs.length);
+});"""
+
+
+FIGURE_MISSING = ("<p class='caution figure-missing'>{what} could not be drawn; the failure is recorded in "
+                  "run.json (output_failures). The data files (CSV, workbook, GeoPackage) are complete.</p>")
