@@ -16,16 +16,41 @@ _UNIT_WORDS = {"kmh": "km/h", "mph": "mph"}
 
 
 def overridden(cfg: Config, check: str) -> bool:
-    """True where the user named ``check`` in ``checks.override``."""
+    """True where the user named ``check`` in ``checks.override``.
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's settings.
+    check : str
+        A check's name (see :mod:`pipeline.core.config`).
+
+    Returns
+    -------
+    bool
+        True where the check is overridden (it then notes instead of stopping the run).
+    """
     return check in cfg["checks.override"]
 
 
 def speed_unit(cfg: Config) -> str:
-    """Unit the speed column is read in: ``roads.speed_unit``, else that of ``output.units``."""
+    """Unit the speed column is read in: ``roads.speed_unit``, else that of ``output.units``.
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's settings.
+
+    Returns
+    -------
+    str
+        ``"kmh"`` or ``"mph"``.
+    """
     return cfg["roads.speed_unit"] or ("mph" if cfg["output.units"] == "us" else "kmh")
 
 
 def _suffix_unit(column: str) -> str | None:
+    """The speed unit a column's name carries (``speed_kmh``, ``mph`` ...), else ``None``."""
     low = column.lower()
     for suffix, unit in _SPEED_SUFFIX.items():
         if low.endswith("_" + suffix) or low == suffix:
@@ -35,7 +60,22 @@ def _suffix_unit(column: str) -> str | None:
 
 def check_road_columns(columns, cfg: Config, path) -> list[str]:
     """Refuse named columns the roads file lacks and speed columns whose name contradicts the
-    speed unit; return notes on what was assumed (a default column that is absent)."""
+    speed unit; note what was assumed (a default column that is absent).
+
+    Parameters
+    ----------
+    columns : iterable
+        The roads file's column names (geometry excluded).
+    cfg : Config
+        The run's settings (``roads.*_column``, ``roads.speed_unit``, ``output.units``).
+    path : Path
+        The roads file, for messages.
+
+    Returns
+    -------
+    list of str
+        Notes for the run; a contradiction raises :class:`InputError`.
+    """
     columns = [str(c) for c in columns]
     notes: list[str] = []
     listing = ", ".join(columns[:15])
