@@ -54,3 +54,25 @@ def test_inputs_in_memory_equal_the_same_files(tmp_path):
     assert in_memory.summary["inputs"]["roads"]["path"] == "given in memory"
     report = pipeline.validate(roads, points, settings)
     assert report["roads"] == len(roads)
+
+
+def test_grade_adjusted_ssd_reaches_horizontal_curves_and_hidden_zones():
+    """With criteria.grade_adjusted the horizontal-curve checks use the SSD on the curve's
+    downhill grade: SSD = 0.278 V t + V^2 / (254 (a / 9.81 + G)), t = 2.5 s, a = 3.4 m/s^2
+    (AASHTO Green Book 2018, ch. 3, metric), rounded up to 5 m as the design values are."""
+    import numpy as np
+
+    p = sample_paths()
+    level = pipeline.audit(p["roads"], p["points"], pipeline.Settings().replace(run__workers=1))
+    graded = pipeline.audit(p["roads"], p["points"], pipeline.Settings().replace(run__workers=1,
+                                                                              criteria__grade_adjusted=True))
+    hc, prof = graded.horizontal_curves, graded.profiles
+    assert len(hc)
+    for c in hc.itertuples():
+        on = prof[prof["road_id"] == c.road_id]
+        g = abs(np.interp(0.5 * (c.start_m + c.end_m), on["chainage_m"], on["grade_pct"])) / 100.0
+        v = c.speed_kmh
+        ssd = 0.278 * v * 2.5 + v * v / (254 * (3.4 / 9.81 - g))
+        assert c.ssd_required_m == np.ceil(ssd / 5 - 1e-9) * 5
+    # the setting changes the requirement (the sample's roads are not level)
+    assert (hc["ssd_required_m"].to_numpy() != level.horizontal_curves["ssd_required_m"].to_numpy()).any()

@@ -106,7 +106,8 @@ def road_hcurve_checks(hcurves: pd.DataFrame | None, profile: pd.DataFrame, cset
     cset : CriteriaSet
         The criteria set (side friction by speed, design SSD, their units).
     cfg : Config
-        The run's settings (``plan.e_max_pct``, %; ``plan.lane_width_m``, m).
+        The run's settings (``plan.e_max_pct``, %; ``plan.lane_width_m``, m; with
+        ``criteria.grade_adjusted`` the required SSD is that on the curve's grade downhill).
 
     Returns
     -------
@@ -122,6 +123,11 @@ def road_hcurve_checks(hcurves: pd.DataFrame | None, profile: pd.DataFrame, cset
     f = np.interp(speed, cset.friction["speed"] * cset.speed_to_kmh, cset.friction["f_max"])
     r_min = min_radius_m(speed, cfg["plan.e_max_pct"] / 100.0, f)
     ssd = cset.ssd_design(speed / cset.speed_to_kmh) * cset.length_to_m
+    if cfg["criteria.grade_adjusted"]:
+        # on grade, the requirement of the downhill direction on the curve (the longer one)
+        g = np.abs(np.interp(0.5 * (hcurves["start_m"] + hcurves["end_m"]), profile["chainage_m"],
+                             profile["grade_pct"])) / 100.0
+        ssd = cset.ssd_design(speed / cset.speed_to_kmh, -g) * cset.length_to_m
     hso = sight_line_offset(hcurves["radius_m"] - cfg["plan.lane_width_m"] / 2, ssd)
     return hcurves.assign(speed_kmh=speed, r_min_m=r_min, below_min_radius=hcurves["radius_m"] < r_min,
                           ssd_required_m=ssd, hso_m=hso, hso_valid=ssd <= hcurves["length_m"], v85_kmh=vmin)

@@ -166,7 +166,9 @@ def road_hazards(road_id: str, profile: pd.DataFrame, curves: pd.DataFrame | Non
             for direction, col in (("increasing", "speed_fwd_kmh"), ("decreasing", "speed_back_kmh")):
                 sign = 1 if direction == "increasing" else -1
                 v = float(profile[col].iloc[i])
-                ssd = float(cset.ssd_design(v / cset.speed_to_kmh)) * cset.length_to_m
+                # on the grade a driver comes up the crest on, where the requirement is on grade
+                grade = (c.g1_pct if sign > 0 else -c.g2_pct) / 100.0 if cfg["criteria.grade_adjusted"] else None
+                ssd = float(cset.ssd_design(v / cset.speed_to_kmh, grade)) * cset.length_to_m
                 zone = hidden_zone(road.z_grid, c.pvi_m, c.pvt_m if sign > 0 else c.pvc_m, ssd, sign,
                                    rules.eye_height_m, 0.0, cfg["sight.fine_step_m"], float(ch[-1]))
                 rows.append({"road_id": road_id, "curve_no": c.curve_no, "direction": direction}
