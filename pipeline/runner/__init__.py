@@ -1,1 +1,18 @@
-"""The network runner: per-road stages, chunks, engines, the work folder and input checks."""
+"""The network runner: per-road stages, chunks, engines, the work folder and input checks.
+
+- :mod:`.network`     the orchestration: :func:`run_network` and :func:`run_audit`
+- :mod:`.speeds`      the speed each road is judged at
+- :mod:`.junctions`   junctions found from the network itself
+- :mod:`.chunks`      chunks of roads and the layouts of the tables they write
+- :mod:`.workfolder`  chunk results on disk, and when they can be reused
+- :mod:`.engines`     one process, a pool of processes, or a Dask cluster
+- :mod:`.result`      a finished run read back with DuckDB, and its accounting
+- :mod:`.progress`    what the run tells the user
+- :mod:`.roadwork`    the per-road stages of one chunk
+- :mod:`.evidence`    what the inputs say, before assuming anything
+- :mod:`.checks`      checking the inputs without running (``sightaudit validate``)
+"""
+
+from .network import accounting, run_audit, run_network
+
+__all__ = ["accounting", "run_audit", "run_network"]
