@@ -25,13 +25,10 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import __version__
 from .core.config import Config, Settings, load_config
-from .evaluate.quality import data_quality
-from .ingest.readers import file_sha256
-from .outputs.export import CAUTION_TEXT, staging_folder, write_outputs, write_run_json
+from .outputs.export import staging_folder, write_outputs, write_run_json
 from .runner.checks import check_inputs
-from .runner.network import Progress, _units_info, accounting, network_summary, run_network, worker_pool
+from .runner.network import Progress, run_network, run_summary, worker_pool
 
 
 def _config(settings) -> Config:
@@ -145,31 +142,13 @@ class AuditResult:
 
 def _summary(network, cfg: Config, roads_path: str, ground_path: str, started: datetime, command,
              in_memory: dict) -> dict:
-    """The run summary (``run.json``) of a computed network."""
-    def described(path, key):
-        where = "given in memory" if in_memory.get(key) else str(Path(path))
-        return {"path": where, "sha256": file_sha256(path)}
-
-    return {
-        "tool": "sightaudit", "version": __version__, "command": command,
-        "started_utc": started.isoformat(timespec="seconds"),
-        "config": cfg.as_dict(), "config_file": cfg.source,
-        "inputs": {"roads": described(roads_path, "roads") | {"crs": network.roads.source_crs.to_string()},
-                   "ground": described(ground_path, "ground") | network.ground_info},
-        "working_crs": {k: v.name for k, v in network.roads.work_crs.items()},
-        "roads": accounting(network) | {
-            "judged_at_substituted_speeds": network.evidence.get("roads_at_substituted_speeds", 0)},
-        "evidence": network.evidence,
-        "criteria": {k: network.criteria.params[k] for k in ("name", "title", "source", "edition", "units")},
-        "units": _units_info(cfg),
-        "hazard_stretches": int((network.evaluation.inventory["hidden_hazard"] != "none").sum()),
-        "network_by_class": network_summary(network).to_dict(orient="records"),
-        "audit_summary": network.evaluation.summary.to_dict(orient="records"),
-        "data_quality": data_quality(network.ground_info["kind"], network.road_table(), network.evaluation.curves,
-                                     cfg["ground.vertical_error_m"], cfg["confidence.max_cell_for_verdict_m"]),
-        "notes": network.notes, "stage_seconds": network.timings, "chunks": network.chunks,
-        "caution": CAUTION_TEXT,
-    }
+    """The run summary (``run.json``, :func:`pipeline.runner.network.run_summary`), with inputs
+    given in memory named so rather than by their temporary files."""
+    summary = run_summary(network, roads_path, ground_path, cfg, command, started)
+    for key, mem in in_memory.items():
+        if mem:
+            summary["inputs"][key]["path"] = "given in memory"
+    return summary
 
 
 def audit(roads, ground, settings=None, *, progress: Progress | None = None, work_dir: str | Path | None = None,

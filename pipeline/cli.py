@@ -217,7 +217,7 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     _print_summary(summary, out, args.quiet)
     failed = summary.get("output_failures") or []
     if failed:
-        print(f"sightaudit: error: not written: " + "; ".join(f"{f['output']} ({f['error']})" for f in failed)
+        print("sightaudit: error: not written: " + "; ".join(f"{f['output']} ({f['error']})" for f in failed)
               + f"; the data outputs in {out} are complete, run.json records the failure", file=sys.stderr)
         return 1
     return 0

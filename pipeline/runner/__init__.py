@@ -1,6 +1,6 @@
 """The network runner: per-road stages, chunks, engines, the work folder and input checks.
 
-- :mod:`.network`     the orchestration: :func:`run_network` and :func:`run_audit`
+- :mod:`.network`     the orchestration: :func:`run_network` and :func:`run_summary`
 - :mod:`.speeds`      the speed each road is judged at
 - :mod:`.junctions`   junctions found from the network itself
 - :mod:`.chunks`      chunks of roads and the layouts of the tables they write
@@ -13,6 +13,6 @@
 - :mod:`.checks`      checking the inputs without running (``sightaudit validate``)
 """
 
-from .network import accounting, run_audit, run_network
+from .network import accounting, run_network, run_summary
 
-__all__ = ["accounting", "run_audit", "run_network"]
+__all__ = ["accounting", "run_network", "run_summary"]

@@ -29,7 +29,6 @@ import pandas as pd
 from ..core.config import Config
 from ..core.errors import InputError
 
-from ..core.config import CHECKS  # noqa: F401  (the checks this module applies)
 from ..ingest.columns import MAX_SPEED_KMH, _UNIT_WORDS, overridden, speed_unit  # noqa: F401
 
 def screen_speeds(table: pd.DataFrame, cfg: Config) -> np.ndarray:

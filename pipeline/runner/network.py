@@ -11,7 +11,8 @@ is interrupted and started again with ``--resume`` reuses the chunks already fin
 Each road ends either ``evaluated`` or ``skipped`` with a reason; the run checks that
 roads in = roads evaluated + roads skipped, and records all of it in ``run.json``.
 
-This module holds the orchestration (:func:`run_network`, :func:`run_audit`); the jobs it
+This module holds the orchestration (:func:`run_network`, :func:`run_summary`; the whole
+audit with its outputs is :func:`pipeline.api.audit`); the jobs it
 orchestrates live beside it: the speed policy (:mod:`.speeds`), junctions from the network
 (:mod:`.junctions`), chunks and table layouts (:mod:`.chunks`), the work folder
 (:mod:`.workfolder`), the engines (:mod:`.engines`), the result and its accounting
@@ -25,7 +26,7 @@ import tempfile
 import time
 import weakref
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import datetime
 from pathlib import Path
 
 import pandas as pd
@@ -38,7 +39,6 @@ from ..evaluate.judge import evaluate
 from ..evaluate.quality import data_quality
 from ..ingest.readers import PointGround, Roads, file_sha256, open_ground, read_features, read_roads
 from ..outputs.export import CAUTION_TEXT as CAUTION
-from ..outputs.export import staging_folder, write_outputs, write_run_json
 from .chunks import chunk_rows
 from .engines import run_chunks, worker_count, worker_pool
 from .evidence import examine, screen_speeds, speed_notes
@@ -50,7 +50,7 @@ from .speeds import resolve_speeds
 from .workfolder import WorkFolder, run_key
 
 __all__ = ["NetworkResult", "Progress", "accounting", "chunk_rows", "network_junction_points",
-           "network_summary", "resolve_speeds", "run_audit", "run_network", "worker_pool"]
+           "network_summary", "resolve_speeds", "run_network", "worker_pool"]
 
 
 @dataclass
@@ -207,54 +207,6 @@ def _judge(result: NetworkResult, cfg: Config, progress: Progress) -> None:
                                      result.work.files("keypoints"), result.hazards, result.criteria, cfg)
         tick()
     result.timings["evaluate"] = time.perf_counter() - t0
-
-
-def run_audit(roads_path: str | Path, ground_path: str | Path, cfg: Config, out_dir: str | Path,
-              progress: Progress | None = None, command: list[str] | None = None, resume: bool = False) -> dict:
-    """The whole audit: read, compute, write every output into ``out_dir``.
-
-    Outputs are written to a temporary folder beside ``out_dir`` and moved into
-    place only when complete. Chunk results are kept in a work folder beside it
-    (``.NAME.work``) until then, so that ``resume`` can reuse them after an
-    interruption.
-
-    Parameters
-    ----------
-    roads_path, ground_path : str or pathlib.Path
-        The roads file and the ground model (DEM or ground points).
-    cfg : Config
-        The run's settings.
-    out_dir : str or pathlib.Path
-        Where the outputs go (replaced as a whole when the run completes).
-    progress : Progress, optional
-        Where to report progress (silent by default).
-    command : list of str, optional
-        The command line, recorded in ``run.json``.
-    resume : bool
-        Reuse the chunks finished by an interrupted run into the same ``out_dir``.
-
-    Returns
-    -------
-    dict
-        The run summary, as written to ``run.json``.
-    """
-    progress = progress or Progress()
-    started = datetime.now(timezone.utc)
-    out_dir = Path(out_dir)
-    work_dir = out_dir.resolve().parent / f".{out_dir.resolve().name}.work"
-    with staging_folder(out_dir) as tmp, worker_pool(cfg) as pool:
-        result = run_network(roads_path, ground_path, cfg, progress, work_dir=work_dir, resume=resume, pool=pool)
-        t0 = time.perf_counter()
-        summary = run_summary(result, roads_path, ground_path, cfg, command, started)
-        with progress.stage("writing outputs"):
-            summary["output_failures"] = write_outputs(tmp, result, summary, cfg, pool)
-        result.timings["export"] = time.perf_counter() - t0
-        finished = datetime.now(timezone.utc)
-        summary["finished_utc"] = finished.isoformat(timespec="seconds")
-        summary["total_seconds"] = round((finished - started).total_seconds(), 2)
-        write_run_json(tmp / "run.json", summary)
-    shutil.rmtree(work_dir, ignore_errors=True)
-    return summary
 
 
 def run_summary(result: NetworkResult, roads_path: str | Path, ground_path: str | Path, cfg: Config,
