@@ -25,6 +25,7 @@ rounding rule give the value (the same rule reproduces every shipped row).
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -181,8 +182,6 @@ def load_sets(extra_files: list[str] | None = None) -> tuple[pd.DataFrame, pd.Da
 
 def get_set(name: str, extra_files: list[str] | None = None) -> CriteriaSet:
     """The named criteria set; an unknown name stops the run naming the known ones."""
-    import difflib
-
     sets, speeds = load_sets(extra_files)
     if name not in set(sets["name"]):
         near = difflib.get_close_matches(name, sets["name"].tolist(), n=1, cutoff=0.0)

@@ -14,9 +14,9 @@ import duckdb
 import pandas as pd
 
 from ..core.config import Config
+from ..core.sqlrun import parquet_view, sql_text
 from .criteria import CriteriaSet
 from .formulas import register_formulas
-from ..core.sqlrun import sql_text
 
 
 @dataclass
@@ -53,8 +53,6 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
     """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the columns
     each table needs). ``profiles`` and ``keypoints`` may be DataFrames or lists of Parquet files,
     which DuckDB reads as it goes without loading them whole."""
-    from ..core.sqlrun import parquet_view
-
     set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
     con = duckdb.connect()
     try:

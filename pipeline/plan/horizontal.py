@@ -39,8 +39,11 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from scipy.signal import savgol_coeffs, savgol_filter
 
 from ..core.config import section_defaults
+from ..core.estimators import mad_sigma
+from ..profile.stations import Polyline, run_lengths
 
 # the [plan] settings' defaults, and the station step of the heading analysis
 DEFAULTS = {k: v for k, v in section_defaults("plan").items() if k in ("smooth_m", "max_radius_m", "min_length_m",
@@ -56,10 +59,6 @@ def heading_curvature(line, step_m: float, smooth_m: float, poly=None
     (1/m, positive turning left) every ``step_m`` along ``line``, and the standard deviation of
     the curvature's noise (1/m): the heading's own high-frequency scatter (1.4826 MAD of raw
     minus smoothed) times the noise gain of the derivative filter."""
-    from scipy.signal import savgol_coeffs, savgol_filter
-
-    from ..profile.stations import Polyline
-
     poly = poly or Polyline(line)
     length = poly.length
     n = max(int(np.floor(length / step_m)) + 1, 2)
@@ -74,12 +73,36 @@ def heading_curvature(line, step_m: float, smooth_m: float, poly=None
     if win >= 5 and n > win:
         smooth = savgol_filter(head, win, 2)
         curv = savgol_filter(head, win, 2, deriv=1, delta=h)
-        resid = head - smooth
-        noise = 1.4826 * np.median(np.abs(resid - np.median(resid)))
-        gain = float(np.sqrt(np.sum(savgol_coeffs(win, 2, deriv=1, delta=h) ** 2)))
+        noise = mad_sigma(head - smooth)
+        gain = derivative_noise_gain(win, h)
         return ch, smooth, curv, noise * gain
     curv = np.gradient(head, h) if n > 2 else np.zeros(n)
     return ch, head, curv, 0.0
+
+
+
+def derivative_noise_gain(window: int, step_m: float) -> float:
+    """Standard deviation of a Savitzky-Golay derivative of white noise of unit sd.
+
+    Parameters
+    ----------
+    window : int
+        Filter window (samples, odd).
+    step_m : float
+        Sample spacing (m).
+
+    Returns
+    -------
+    float
+        ``sqrt(sum c_k^2)`` (1/m) over the coefficients c_k of the quadratic first-derivative
+        filter: a linear filter's output variance is the input variance times the sum of its
+        squared weights.
+
+    References
+    ----------
+    Savitzky, A. and Golay, M. J. E. (1964). *Analytical Chemistry* 36(8), 1627-1639.
+    """
+    return float(np.sqrt(np.sum(savgol_coeffs(window, 2, deriv=1, delta=step_m) ** 2)))
 
 
 def fit_circle(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:
@@ -115,8 +138,6 @@ def _detect(line, opts: dict, smooth_m: float, poly) -> list[dict]:
     sign = (np.sign(curv) * (np.abs(curv) > k_min)).astype(int)
     # a bend briefly dipping under the threshold (noise) is still one bend
     gap = int(round(opts["smooth_m"] / (ch[1] - ch[0])))
-    from ..profile.stations import run_lengths
-
     for a, b in run_lengths(sign == 0):
         if 0 < a and b < len(sign) and b - a <= gap and sign[a - 1] == sign[b]:
             sign[a:b] = sign[a - 1]
@@ -164,8 +185,6 @@ def horizontal_curves(line, opts: dict | None = None, poly=None) -> pd.DataFrame
     over three times that, it finds long flat curves that noise breaks up at the first scale.
     A coarse-scale curve replaces the fine-scale pieces inside it when they all turn its way.
     """
-    from ..profile.stations import Polyline
-
     opts = DEFAULTS | (opts or {})
     poly = poly or Polyline(line)
     length = poly.length

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 import shapely
+from scipy.spatial import cKDTree
 
 from ..ingest.readers import map_to_pixel
 
@@ -72,8 +73,6 @@ class Polyline:
     def locate(self, x, y, k: int = 4) -> tuple[np.ndarray, np.ndarray]:
         """Chainage (m) of each point's nearest point on the line and its signed offset (m,
         + = left of the direction of increasing chainage)."""
-        from scipy.spatial import cKDTree
-
         if self._tree is None:
             self._tree = cKDTree(self.xy)
         x = np.asarray(x, dtype=float)
@@ -174,23 +173,8 @@ def regularise(chain: np.ndarray, z: np.ndarray, stations: np.ndarray, step_m: f
     order = np.argsort(chain, kind="stable")
     chain, z = chain[order], z[order]
 
-    # local straight-line fit within each station's bin
     half = 0.5 * step_m
-    idx = np.floor((chain - stations[0] + half) / step_m).astype(np.int64)
-    inbin = (idx >= 0) & (idx < n_st)
-    bi, u, zz = idx[inbin], chain[inbin] - stations[idx[inbin]], z[inbin]
-    cnt = np.bincount(bi, minlength=n_st).astype(float)
-    su = np.bincount(bi, u, n_st)
-    sz = np.bincount(bi, zz, n_st)
-    suu = np.bincount(bi, u * u, n_st)
-    suz = np.bincount(bi, u * zz, n_st)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ubar, zbar = su / cnt, sz / cnt
-        sxx = suu - cnt * ubar**2
-        sxy = suz - cnt * ubar * zbar
-        slope = np.where(sxx > 1e-9 * step_m**2, sxy / sxx, 0.0)
-        fitted = zbar - slope * ubar
-    has = cnt > 0
+    fitted, has = binned_line_fit(chain, z, stations, step_m)
 
     # interpolation between neighbouring samples, and the width of the bracketing gap
     interp = np.interp(stations, chain, z)
@@ -221,3 +205,55 @@ def run_lengths(mask: np.ndarray) -> list[tuple[int, int]]:
     m = np.concatenate([[False], np.asarray(mask, dtype=bool), [False]])
     d = np.diff(m.astype(np.int8))
     return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1)))
+
+
+def binned_line_fit(chain: np.ndarray, z: np.ndarray, stations: np.ndarray, step_m: float
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """Elevation at each station from a straight line fitted to the samples in its bin.
+
+    Parameters
+    ----------
+    chain : ndarray
+        Chainages of the samples (m), sorted, all finite.
+    z : ndarray
+        Elevations of the samples (m), all finite.
+    stations : ndarray
+        Evenly spaced station chainages (m).
+    step_m : float
+        Station step (m); each station's bin is half a step either side of it.
+
+    Returns
+    -------
+    fitted : ndarray
+        The fitted line's value at each station (m); the bin's mean where the samples do not
+        spread along the road (a single sample, or all at one chainage); NaN for an empty bin.
+    has : ndarray of bool
+        True where the bin holds at least one sample.
+
+    Notes
+    -----
+    Ordinary least squares of z on u = chain - station within each bin, from the sums
+    ``n, sum u, sum z, sum u^2, sum u z``: slope ``b = Sxy / Sxx`` with
+    ``Sxx = sum u^2 - n ubar^2`` and ``Sxy = sum u z - n ubar zbar``, and the value at the
+    station ``zbar - b ubar``. Unbiased on a constant grade, unlike the bin mean when the
+    samples sit off-centre in their bin. The textbook estimator (e.g. Draper & Smith,
+    *Applied Regression Analysis*, ch. 1; from memory).
+    """
+    n_st = len(stations)
+    half = 0.5 * step_m
+    idx = np.floor((chain - stations[0] + half) / step_m).astype(np.int64)
+    inbin = (idx >= 0) & (idx < n_st)
+    bi, u, zz = idx[inbin], chain[inbin] - stations[idx[inbin]], z[inbin]
+    cnt = np.bincount(bi, minlength=n_st).astype(float)
+    su = np.bincount(bi, u, n_st)
+    sz = np.bincount(bi, zz, n_st)
+    suu = np.bincount(bi, u * u, n_st)
+    suz = np.bincount(bi, u * zz, n_st)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ubar, zbar = su / cnt, sz / cnt
+        sxx = suu - cnt * ubar**2
+        sxy = suz - cnt * ubar * zbar
+        slope = np.where(sxx > 1e-9 * step_m**2, sxy / sxx, 0.0)
+        fitted = zbar - slope * ubar
+    return fitted, cnt > 0
+

@@ -17,6 +17,8 @@ import numpy as np
 import pandas as pd
 import shapely
 
+from ..profile.stations import run_lengths
+
 
 def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float, direction: int,
                 eye_height_m: float, object_height_m: float = 0.0, step_m: float = 1.0,
@@ -56,8 +58,6 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
     hidden &= np.isfinite(zq) & np.isfinite(zp)
     if not hidden.any():
         return None
-    from ..profile.stations import run_lengths
-
     runs = run_lengths(hidden)
     dist = [0.0 if min(q[a], q[b - 1]) <= crest_pvi_m <= max(q[a], q[b - 1])
             else min(abs(q[a] - crest_pvi_m), abs(q[b - 1] - crest_pvi_m)) for a, b in runs]
