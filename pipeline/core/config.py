@@ -22,7 +22,15 @@ from .validate import check_value, coerce_value, nearest_key
 
 
 class Config:
-    """Settings as used by one run. ``cfg["profile.step_m"]`` reads a value."""
+    """Settings as used by one run. ``cfg["profile.step_m"]`` reads a value.
+
+    Parameters
+    ----------
+    values : dict, optional
+        ``{section: {key: value}}`` to set over the defaults of :data:`SPEC`.
+    source : str, default "defaults"
+        Where the values come from (a file name), named in error messages.
+    """
 
     def __init__(self, values: dict[str, dict[str, Any]] | None = None, source: str = "defaults"):
         self._values = {s: {k: v[0] for k, v in keys.items()} for s, keys in SPEC.items()}
@@ -32,6 +40,21 @@ class Config:
             self.update(values, source)
 
     def update(self, values: dict[str, Any], source: str) -> None:
+        """Set several values, each checked against its default's type and range.
+
+        Parameters
+        ----------
+        values : dict
+            ``{section: {key: value}}``; table settings of ``[inventory]`` are merged into their
+            default, others replaced.
+        source : str
+            Where the values come from (a file name, ``"command line"``), for error messages.
+
+        Raises
+        ------
+        InputError
+            On an unknown section or key (naming the nearest valid one) or a bad value.
+        """
         for section, keys in values.items():
             if section not in SPEC:
                 raise InputError(
@@ -53,6 +76,17 @@ class Config:
                 self.explicit.add(f"{section}.{key}")
 
     def set(self, dotted: str, value: Any, source: str = "command line") -> None:
+        """Set one value, checked as in a file.
+
+        Parameters
+        ----------
+        dotted : str
+            ``"section.key"``.
+        value : object
+            The new value, in the setting's unit (m, km/h, % ... as its description says).
+        source : str, default "command line"
+            Where the value comes from, for error messages.
+        """
         section, _, key = dotted.partition(".")
         self.update({section: {key: value}}, source)
 
@@ -64,10 +98,28 @@ class Config:
             raise KeyError(f"no setting {dotted!r}") from None
 
     def as_dict(self) -> dict[str, dict[str, Any]]:
+        """Every setting, as ``{section: {key: value}}``.
+
+        Returns
+        -------
+        dict
+            A copy of each section's table (the values themselves are not copied).
+        """
         return {s: dict(k) for s, k in self._values.items()}
 
     def copy_with(self, values: dict[str, Any]) -> "Config":
-        """A copy with some settings changed (``{"section.key": value}``)."""
+        """A copy with some settings changed.
+
+        Parameters
+        ----------
+        values : dict
+            ``{"section.key": value}``, each checked as in a file.
+
+        Returns
+        -------
+        Config
+            A deep copy of this configuration with the values set.
+        """
         other = copy.deepcopy(self)
         for dotted, value in values.items():
             other.set(dotted, value, "internal")
@@ -86,7 +138,26 @@ class Config:
 
 
 def load_config(path: str | Path | None = None, overrides: dict[str, Any] | None = None) -> Config:
-    """Defaults, then the TOML file (if any), then ``overrides`` (``{"section.key": value}``)."""
+    """The settings of a run: defaults, then the TOML file (if any), then ``overrides``.
+
+    Parameters
+    ----------
+    path : str or Path, optional
+        A TOML config file; ``None`` for defaults only.
+    overrides : dict, optional
+        ``{"section.key": value}`` from the command line; ``None`` values are skipped.
+
+    Returns
+    -------
+    Config
+        The checked settings, with the unit-dependent defaults applied
+        (:meth:`Config.apply_unit_defaults`).
+
+    Raises
+    ------
+    InputError
+        When the file is missing or not valid TOML, or a key or value is bad.
+    """
     cfg = Config()
     if path:
         p = Path(path)
@@ -120,7 +191,14 @@ def _toml_value(v: Any) -> str:
 
 
 def example_toml() -> str:
-    """A commented config file holding every setting at its default (``sightaudit init``)."""
+    """A commented config file holding every setting at its default (``sightaudit init``).
+
+    Returns
+    -------
+    str
+        TOML text: every section of :data:`SPEC`, each key commented out at its default under
+        its description.
+    """
     lines = ["# sightaudit settings. Every setting is listed, commented out, at its default:",
              "# remove the leading '# ' of the ones you change. Lengths in metres and speeds in km/h",
              "# unless the key's name says otherwise. With output.units = \"us\", the criteria set, the",

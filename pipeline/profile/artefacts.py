@@ -41,8 +41,12 @@ DEFAULTS = section_defaults("artefacts")
 
 
 def _neighbour_prediction(z: np.ndarray, k_max: int = 3) -> np.ndarray:
-    """Median over k = 1..k_max of (z[i-k] + z[i+k]) / 2: exact on a straight grade and blind
-    to z[i] itself. NaN where fewer than two pairs exist."""
+    """What a sample's neighbours imply for it on a straight grade.
+
+    The median over k = 1..k_max of the pair means ``(z[i-k] + z[i+k]) / 2``: exact on a
+    straight grade, blind to ``z[i]`` itself, and robust to one disturbed pair (a sample median,
+    our own rule). NaN where fewer than two pairs exist.
+    """
     n = len(z)
     preds = np.full((k_max, n), np.nan)
     for k in range(1, k_max + 1):
@@ -57,7 +61,28 @@ def _neighbour_prediction(z: np.ndarray, k_max: int = 3) -> np.ndarray:
 
 
 def find_spikes(z: np.ndarray, sigma: float, spike_m: float) -> np.ndarray:
-    """Stations whose elevation stands out from their neighbours (spikes up, pits down)."""
+    """Stations whose elevation stands out from their neighbours (spikes up, pits down).
+
+    Parameters
+    ----------
+    z : ndarray
+        Ground elevation per station (m); NaN where missing or already masked.
+    sigma : float
+        Standard deviation of the ground data's noise (m).
+    spike_m : float
+        Smallest departure counted as a spike or pit (m).
+
+    Returns
+    -------
+    ndarray of bool
+        True at spike and pit stations.
+
+    Notes
+    -----
+    A station is hit when ``|z - prediction| > max(spike_m, 6 sigma)``, the prediction being
+    :func:`_neighbour_prediction`; found twice over (hits removed between) so that a
+    two-sample spike goes too.
+    """
     z = np.asarray(z, dtype=float).copy()
     mask = np.zeros(len(z), dtype=bool)
     thr = max(spike_m, 6.0 * sigma)
@@ -73,9 +98,36 @@ def find_spikes(z: np.ndarray, sigma: float, spike_m: float) -> np.ndarray:
 
 
 def find_dips(chainage: np.ndarray, z: np.ndarray, step: float, sigma: float, opts: dict) -> list[tuple[int, int]]:
-    """Index ranges ``(first, last)`` (inclusive) of short stretches with grades or curvature no
-    road has (bridge or culvert dips, humps). ``chainage`` and ``z`` hold valid samples only;
-    curvature is taken only over evenly spaced neighbours (never across a data gap)."""
+    """Index ranges of short stretches with grades or curvature no road has.
+
+    Parameters
+    ----------
+    chainage : ndarray
+        Chainages of the valid samples only (m).
+    z : ndarray
+        Their elevations (m).
+    step : float
+        Station step (m).
+    sigma : float
+        Standard deviation of the ground data's noise (m).
+    opts : dict
+        ``max_grade_pct`` (%), ``min_k`` (m per %) and ``max_width_m`` (m).
+
+    Returns
+    -------
+    list of (int, int)
+        ``(first, last)`` indices (inclusive) of bridge or culvert dips and humps, each no wider
+        than ``max_width_m``.
+
+    Notes
+    -----
+    A sample is suspect where the grade to a neighbour exceeds ``max_grade_pct``, or where the
+    second difference ``z[i-1] - 2 z[i] + z[i+1]`` (evenly spaced neighbours only, never
+    across a gap) exceeds ``step^2 / (100 min_k)`` -- that of a vertical curve of K = min_k,
+    whose curvature is 1 / (100 K) per metre -- plus five times its noise sd ``sqrt(6) sigma``
+    (:func:`~pipeline.core.estimators.second_difference_sd`). Suspect samples closer than
+    ``max_width_m / 2`` are grouped.
+    """
     n = len(z)
     if n < 3:
         return []
@@ -219,8 +271,23 @@ def detect(chainage_m: np.ndarray, z_m: np.ndarray, step_m: float, sigma: float,
 
 
 def implausible_grades(chainage_m: np.ndarray, z_m: np.ndarray, max_grade_pct: float) -> str | None:
-    """A reason to skip the road when more than 5 % of its length has grades steeper than
-    ``max_grade_pct`` (not a road profile: wrong elevation unit or wrong ground model)."""
+    """A reason to skip the road when its grades are not those of a road.
+
+    Parameters
+    ----------
+    chainage_m : ndarray
+        Station chainages (m).
+    z_m : ndarray
+        Ground elevation per station (m); NaN where missing.
+    max_grade_pct : float
+        Steepest grade a road plausibly has (%).
+
+    Returns
+    -------
+    str or None
+        The reason, when more than 5 % of the length has grades steeper than
+        ``max_grade_pct`` (a wrong elevation unit or ground model); else ``None``.
+    """
     ch = np.asarray(chainage_m, dtype=float)
     z = np.asarray(z_m, dtype=float)
     ok = np.isfinite(z)

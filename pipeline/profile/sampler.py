@@ -13,7 +13,19 @@ from .stations import MISSING, Polyline, bilinear, point_spacing_m, regularise
 
 
 class GroundSampler:
-    """Ground elevation along one road at a time, from a DEM or from ground points."""
+    """Ground elevation along one road at a time, from a DEM or from ground points.
+
+    Parameters
+    ----------
+    ground : DemGround or PointGround
+        The opened ground data (:mod:`pipeline.ingest.readers`).
+    work_crs : dict
+        Working CRS (metric) per key, the roads' coordinates being in these.
+    cfg : Config
+        Run settings (``[profile]``, ``[ground]``, ``[structures]``, ``[junctions]``).
+    structures, junctions : optional
+        Known structures and junctions read from the user's layers, or ``None``.
+    """
 
     def __init__(self, ground: DemGround | PointGround, work_crs: dict, cfg: Config, structures=None,
                  junctions=None):
@@ -41,13 +53,38 @@ class GroundSampler:
         return self._tr[key]
 
     def structure_ranges(self, row, line) -> list:
+        """Known structures on one road, as chainage ranges to mask.
+
+        Parameters
+        ----------
+        row : mapping
+            The road's record: ``work_key``, ``road_id``, ``source_id``.
+        line : shapely LineString
+            Its centreline in the working CRS (m).
+
+        Returns
+        -------
+        list of (float, float, str)
+            ``(from_m, to_m, label)`` per structure (m), widened by ``structures.buffer_m``.
+        """
         if self.structures is None:
             return []
         return structure_ranges(self.structures, line, self.work_crs[row["work_key"]], row["road_id"],
                                 row["source_id"], self.cfg)
 
     def junction_points(self, row) -> list:
-        """Junctions and accesses from the user's layer on this road: (chainage, label)."""
+        """Junctions and accesses from the user's layer on one road.
+
+        Parameters
+        ----------
+        row : mapping
+            The road's record: ``geometry``, ``work_key``, ``road_id``, ``source_id``.
+
+        Returns
+        -------
+        list of (float, str)
+            ``(chainage_m, label)`` per junction within ``junctions.max_offset_m`` of the road.
+        """
         if self.junctions is None:
             return []
         found = feature_chainages(self.junctions, row["geometry"], self.work_crs[row["work_key"]],

@@ -15,9 +15,35 @@ import numpy as np
 
 
 def crest_sight_formula(a_pct, length_m, eye_height_m=1.08, object_height_m=0.60):
-    """Sight distance (m) over a crest curve of length L (m) and A (%), AASHTO Green Book
-    ch. 3: S < L: L = A S^2 / (200 (sqrt h1 + sqrt h2)^2); S > L: L = 2 S - 200 (sqrt h1 +
-    sqrt h2)^2 / A. The case is chosen by comparing the result with L."""
+    """Sight distance over a crest vertical curve, from its A and L.
+
+    Parameters
+    ----------
+    a_pct : array_like
+        Algebraic difference of grades A (%).
+    length_m : array_like
+        Curve length L (m).
+    eye_height_m : float, default 1.08
+        Driver's eye height h1 (m).
+    object_height_m : float, default 0.60
+        Object height h2 (m).
+
+    Returns
+    -------
+    ndarray
+        Sight distance S (m).
+
+    Notes
+    -----
+    S < L: ``L = A S^2 / (200 (sqrt h1 + sqrt h2)^2)``; S > L:
+    ``L = 2 S - 200 (sqrt h1 + sqrt h2)^2 / A``, each solved for S; the case is chosen by
+    comparing the S < L result with L.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     a = np.asarray(a_pct, dtype=float)
     L = np.asarray(length_m, dtype=float)
     C = 200.0 * (np.sqrt(eye_height_m) + np.sqrt(object_height_m)) ** 2
@@ -28,9 +54,36 @@ def crest_sight_formula(a_pct, length_m, eye_height_m=1.08, object_height_m=0.60
 
 
 def sag_sight_formula(a_pct, length_m, headlight_height_m=0.60, beam_angle_deg=1.0):
-    """Headlight sight distance (m) on a sag curve, AASHTO Green Book ch. 3:
-    S < L: L = A S^2 / (200 (h + S tan b)); S > L: L = 2 S - 200 (h + S tan b) / A.
-    Infinite where the beam never meets the road (S > L with 2 A <= 200 tan b)."""
+    """Headlight sight distance on a sag vertical curve, from its A and L.
+
+    Parameters
+    ----------
+    a_pct : array_like
+        Algebraic difference of grades A (%).
+    length_m : array_like
+        Curve length L (m).
+    headlight_height_m : float, default 0.60
+        Headlight height h (m).
+    beam_angle_deg : float, default 1.0
+        Upward divergence b of the beam's upper edge (degrees).
+
+    Returns
+    -------
+    ndarray
+        Sight distance S (m); infinite where the beam never meets the road (S > L with
+        ``2 A <= 200 tan b``).
+
+    Notes
+    -----
+    S < L: ``L = A S^2 / (200 (h + S tan b))``; S > L: ``L = 2 S - 200 (h + S tan b) / A``,
+    each solved for S (the first a quadratic, its positive root); the case is chosen by
+    comparing the S < L result with L.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     a = np.asarray(a_pct, dtype=float)
     L = np.asarray(length_m, dtype=float)
     h = headlight_height_m
@@ -44,8 +97,32 @@ def sag_sight_formula(a_pct, length_m, headlight_height_m=0.60, beam_angle_deg=1
 
 
 def crest_length_formula(a_pct, sight_m, eye_height_m=1.08, object_height_m=0.60):
-    """Crest curve length (m) giving sight distance S, AASHTO Green Book ch. 3 (both cases,
-    chosen by comparing the S < L result with S; never negative)."""
+    """Crest vertical curve length giving a sight distance.
+
+    Parameters
+    ----------
+    a_pct : array_like
+        Algebraic difference of grades A (%).
+    sight_m : array_like
+        Sight distance S (m).
+    eye_height_m, object_height_m : float
+        Eye height h1 and object height h2 (m); defaults 1.08 and 0.60.
+
+    Returns
+    -------
+    ndarray
+        Curve length L (m), never negative.
+
+    Notes
+    -----
+    ``L = A S^2 / (200 (sqrt h1 + sqrt h2)^2)`` where that is at least S, else
+    ``L = 2 S - 200 (sqrt h1 + sqrt h2)^2 / A``.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     a = np.asarray(a_pct, dtype=float)
     S = np.asarray(sight_m, dtype=float)
     C = 200.0 * (np.sqrt(eye_height_m) + np.sqrt(object_height_m)) ** 2
@@ -56,8 +133,34 @@ def crest_length_formula(a_pct, sight_m, eye_height_m=1.08, object_height_m=0.60
 
 
 def sag_length_formula(a_pct, sight_m, headlight_height_m=0.60, beam_angle_deg=1.0):
-    """Sag curve length (m) giving headlight sight distance S, AASHTO Green Book ch. 3
-    (both cases, chosen by comparing the S < L result with S; never negative)."""
+    """Sag vertical curve length giving a headlight sight distance.
+
+    Parameters
+    ----------
+    a_pct : array_like
+        Algebraic difference of grades A (%).
+    sight_m : array_like
+        Sight distance S (m).
+    headlight_height_m : float, default 0.60
+        Headlight height h (m).
+    beam_angle_deg : float, default 1.0
+        Upward divergence b of the beam (degrees).
+
+    Returns
+    -------
+    ndarray
+        Curve length L (m), never negative.
+
+    Notes
+    -----
+    ``L = A S^2 / (200 (h + S tan b))`` where that is at least S, else
+    ``L = 2 S - 200 (h + S tan b) / A``.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     a = np.asarray(a_pct, dtype=float)
     S = np.asarray(sight_m, dtype=float)
     q = 200.0 * (headlight_height_m + S * np.tan(np.radians(beam_angle_deg)))

@@ -33,17 +33,33 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .attribution import BEAM, END, LIMIT_NAMES, LOOKAHEAD, LOS, attribute  # noqa: F401  (re-exported)
 from .closed_form import (crest_length_formula, crest_sight_formula, sag_length_formula,  # noqa: F401
                           sag_sight_formula)  # re-exported: the closed forms live in closed_form
-
-# limit codes (profiles.parquet carries them as text)
-LOS, BEAM, LOOKAHEAD, END = 0, 1, 2, 3
-LIMIT_NAMES = np.array(["line of sight", "headlight", "look-ahead", "end of profile"], dtype=object)
 
 
 @dataclass(frozen=True)
 class SightRules:
-    """Heights (m), beam angle (degrees) and look-ahead (m) for sight distance."""
+    """Heights, beam angle and look-ahead for sight distance.
+
+    Parameters
+    ----------
+    eye_height_m : float, default 1.08
+        Driver's eye height above the road (m), positive.
+    object_height_m : float, default 0.60
+        Object height (m), not negative.
+    headlight_height_m : float, default 0.60
+        Headlight height (m), positive.
+    beam_angle_deg : float, default 1.0
+        Upward divergence of the headlight beam (degrees), from 0 up to 10.
+    lookahead_m : float, default 400.0
+        Farthest distance checked (m), positive.
+
+    References
+    ----------
+    Defaults: AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th
+    ed., 2018, ch. 3.
+    """
 
     eye_height_m: float = 1.08
     object_height_m: float = 0.60
@@ -173,8 +189,33 @@ def _govern(los, beam, los_k, beam_k, avail, lookahead):
 
 def sight_from(eyes_m: np.ndarray, profile, grade, rules: SightRules, direction: int,
                fine_step_m: float = 1.0) -> dict[str, np.ndarray]:
-    """Sight distance from eyes at arbitrary chainages ``eyes_m`` in one direction (+1 with
-    the chainage, -1 against it), the road ahead sampled every ``fine_step_m`` metres."""
+    """Sight distance from eyes at arbitrary chainages, in one direction.
+
+    Parameters
+    ----------
+    eyes_m : array_like
+        Chainages of the eyes (m).
+    profile : callable
+        ``profile(x)``: road elevation (m) at chainages ``x`` (m), NaN where none.
+    grade : callable
+        ``grade(x)``: road grade (fraction) at chainages ``x``.
+    rules : SightRules
+        Heights (m), beam angle (degrees) and look-ahead (m).
+    direction : int
+        +1 with the chainage, -1 against it.
+    fine_step_m : float, default 1.0
+        Spacing of the road samples ahead (m).
+
+    Returns
+    -------
+    dict of ndarray
+        ``sight_m`` (m, NaN where the eye has no profile), ``limit`` (codes, see
+        ``LIMIT_NAMES``) and ``limit_at_m`` (chainage of the blocking or hit point, m).
+
+    Notes
+    -----
+    As :func:`sight_both_ways`, for one direction and any eye positions.
+    """
     eyes = np.asarray(eyes_m, dtype=float)
     W = max(int(np.ceil(rules.lookahead_m / fine_step_m)), 1)
     d = np.arange(1, W + 1) * fine_step_m
@@ -304,37 +345,3 @@ def _direction_columns(name: str, sign: int, ch, h: float, nan_eye, found, rules
             f"limit_{name}": np.where(nan_eye, END, lim).astype(np.int8),
             f"limit_at_{name}_m": at_ch,
             f"curve_{name}": attribute(ch, at_ch, lim, curves, forward=(sign > 0), tol_m=max(1.0, 2 * h))}
-
-
-def attribute(eye_ch: np.ndarray, at_ch: np.ndarray, limit: np.ndarray, curves, forward: bool,
-              tol_m: float = 1.0) -> np.ndarray:
-    """Curve number limiting each station's sight (0 = none).
-
-    Line of sight: the crest whose PVC-PVT span holds the blocking point (within
-    ``tol_m``, at least the sight check's step: an angle point's curve is shorter than the
-    step and its blocking point falls a step to either side). Headlight: the sag nearest behind the hit point, in the direction of
-    travel, that is not wholly behind the eye (the beam of an S > L sag meets
-    the road on the tangent beyond the PVT).
-    """
-    res = np.zeros(len(eye_ch), dtype=np.int64)
-    if curves is None or len(curves) == 0:
-        return res
-    tol = tol_m
-    for kind, code in (("crest", LOS), ("sag", BEAM)):
-        c = curves[curves["kind"] == kind].sort_values("pvc_m")
-        if not len(c):
-            continue
-        pvc, pvt, no = c["pvc_m"].to_numpy(), c["pvt_m"].to_numpy(), c["curve_no"].to_numpy()
-        sel = (limit == code) & np.isfinite(at_ch)
-        p, e = at_ch[sel], eye_ch[sel]
-        if kind == "crest":
-            i = np.clip(np.searchsorted(pvc - tol, p, side="right") - 1, 0, len(c) - 1)
-            ok = (p >= pvc[i] - tol) & (p <= pvt[i] + tol)
-        elif forward:
-            i = np.clip(np.searchsorted(pvc, p + tol, side="right") - 1, 0, len(c) - 1)
-            ok = (pvc[i] <= p + tol) & (pvt[i] >= e - tol)
-        else:
-            i = np.clip(np.searchsorted(pvt, p - tol, side="left"), 0, len(c) - 1)
-            ok = (pvt[i] >= p - tol) & (pvc[i] <= e + tol)
-        res[np.flatnonzero(sel)[ok]] = no[i[ok]]
-    return res
