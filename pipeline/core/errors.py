@@ -3,7 +3,7 @@
 A file-level fault (missing file, unreadable format, missing column, bad value,
 unknown CRS, unknown config key) stops the run: the message names the file, the
 row or column, and what to fix. Per-road faults never raise; the road is skipped
-with a reason instead (see :mod:`pipeline.batch`).
+with a reason instead (see :mod:`pipeline.runner`).
 """
 
 from __future__ import annotations

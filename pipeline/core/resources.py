@@ -24,14 +24,36 @@ def _folder(name: str) -> Path:
 
 
 def sql_dir() -> Path:
+    """The folder of the bundled SQL files and criteria tables (``sql/``).
+
+    Returns
+    -------
+    Path
+        In a source checkout the top-level ``sql/``, in an installed wheel ``pipeline/_sql``.
+    """
     return _folder("sql")
 
 
 def samples_dir() -> Path:
+    """The folder of the bundled sample network (``data_samples/``).
+
+    Returns
+    -------
+    Path
+        In a source checkout the top-level ``data_samples/``, in a wheel ``pipeline/_samples``.
+    """
     return _folder("data_samples")
 
 
 def sample_paths() -> dict[str, Path]:
+    """The files of the bundled sample network (the Wendle Vale roads).
+
+    Returns
+    -------
+    dict of str to Path
+        ``roads`` (GeoPackage), ``dem`` (GeoTIFF), ``points``, ``structures`` and
+        ``junctions`` (CSV).
+    """
     d = samples_dir()
     return {
         "roads": d / "wendle_vale_roads.gpkg",

@@ -13,15 +13,42 @@ from .resources import sql_dir
 
 
 def sql_text(name: str) -> str:
-    """The text of ``sql/<name>.sql``."""
+    """The text of one of the project's SQL files.
+
+    Parameters
+    ----------
+    name : str
+        File name without extension, e.g. ``"evaluate"`` for ``sql/evaluate.sql``.
+
+    Returns
+    -------
+    str
+        The file's text (UTF-8).
+    """
     return (sql_dir() / f"{name}.sql").read_text(encoding="utf-8")
 
 
 def parquet_relation(con, files):
-    """A DuckDB relation over Parquet ``files`` (a list of paths; columns united by name).
+    """A DuckDB relation over Parquet files, their columns united by name.
 
-    The paths travel as values, never inside SQL text, so a path holding a quote, a
-    semicolon or glob characters reads as itself."""
+    Parameters
+    ----------
+    con : duckdb.DuckDBPyConnection
+        The connection to read with.
+    files : str, Path or list of them
+        The Parquet files. The paths travel as values, never inside SQL text, so a path
+        holding a quote, a semicolon or glob characters reads as itself.
+
+    Returns
+    -------
+    duckdb.DuckDBPyRelation
+        The relation over all the files.
+
+    Raises
+    ------
+    ValueError
+        When no file is given.
+    """
     files = [str(f) for f in ([files] if isinstance(files, str) else files)]
     if not files:
         raise ValueError("no Parquet files to read")
@@ -29,15 +56,35 @@ def parquet_relation(con, files):
 
 
 def parquet_view(con, name: str, files) -> None:
-    """Create (or replace) the view ``name`` over Parquet ``files`` (see :func:`parquet_relation`).
-    ``name`` is an identifier chosen by the code, never by the user."""
+    """Create (or replace) a view over Parquet files (see :func:`parquet_relation`).
+
+    Parameters
+    ----------
+    con : duckdb.DuckDBPyConnection
+        The connection to create the view on.
+    name : str
+        Name of the view: an identifier chosen by the code, never by the user.
+    files : str, Path or list of them
+        The Parquet files.
+    """
     parquet_relation(con, files).create_view(name, replace=True)
 
 
 def write_parquet_from(relation, path) -> None:
-    """Write a DuckDB relation to a Parquet file at ``path``, streaming record batches with
-    pyarrow (``COPY ... TO`` would need the path in SQL text or a bound parameter that older
-    DuckDB releases refuse)."""
+    """Write a DuckDB relation to a Parquet file, streaming record batches with pyarrow.
+
+    Parameters
+    ----------
+    relation : duckdb.DuckDBPyRelation
+        The rows to write.
+    path : str or Path
+        The Parquet file to write.
+
+    Notes
+    -----
+    ``COPY ... TO`` would need the path in SQL text or a bound parameter that older DuckDB
+    releases refuse, hence the record-batch reader.
+    """
     import pyarrow.parquet as pq
 
     reader = (relation.to_arrow_reader() if hasattr(relation, "to_arrow_reader")  # newer DuckDB

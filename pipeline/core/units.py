@@ -21,7 +21,24 @@ _LENGTH_UNITS = {
 
 
 def metres_per(unit: str) -> float:
-    """Metres in one ``unit`` ('m', 'ft' or 'us_ft'), from PROJ's unit table."""
+    """Metres in one length unit, from PROJ's unit table.
+
+    Parameters
+    ----------
+    unit : str
+        ``'m'``, ``'ft'`` (international foot, EPSG:9002) or ``'us_ft'`` (US survey foot,
+        EPSG:9003).
+
+    Returns
+    -------
+    float
+        Metres per unit (1, 0.3048, 1200/3937).
+
+    Raises
+    ------
+    InputError
+        For any other unit name.
+    """
     try:
         epsg_name = _LENGTH_UNITS[unit]
     except KeyError:
@@ -32,7 +49,13 @@ def metres_per(unit: str) -> float:
 
 
 def kmh_per_mph() -> float:
-    """km/h in one mph: the statute mile (1609.344 m, from PROJ's unit table) per hour."""
+    """Kilometres per hour in one mile per hour.
+
+    Returns
+    -------
+    float
+        The statute mile (1609.344 m, from PROJ's unit table) per hour, in km/h.
+    """
     return float(pyproj.get_units_map(category="linear")["Statute mile"].conv_factor) / 1000.0
 
 
@@ -43,6 +66,13 @@ class OutputUnits:
     ``*_kmh`` becomes ``*_mph`` and ``*km*`` becomes ``*mi*``, with the values converted;
     K (``k``, ``k_required``) becomes feet per percent. The foot is the international foot
     unless ``us_ft`` (US survey foot) is asked for.
+
+    Parameters
+    ----------
+    system : str, default "metric"
+        ``'metric'`` or ``'us'``.
+    foot : str, default "ft"
+        Foot of US customary output: ``'ft'`` (international) or ``'us_ft'`` (US survey).
     """
 
     def __init__(self, system: str = "metric", foot: str = "ft"):
@@ -61,13 +91,48 @@ class OutputUnits:
         self.distance_label = "mi" if self.us else "km"
 
     def length(self, metres):
+        """A length in the output unit.
+
+        Parameters
+        ----------
+        metres : float or array_like
+            Length (m).
+
+        Returns
+        -------
+        float or ndarray
+            The length in m or ft (international or US survey foot).
+        """
         return metres / self.m_per_length
 
     def speed(self, kmh):
+        """A speed in the output unit.
+
+        Parameters
+        ----------
+        kmh : float or array_like
+            Speed (km/h).
+
+        Returns
+        -------
+        float or ndarray
+            The speed in km/h or mph.
+        """
         return kmh / self.kmh_per_speed
 
     def column(self, name: str) -> str:
-        """The output name of an internal (metric) column."""
+        """The output name of an internal (metric) column.
+
+        Parameters
+        ----------
+        name : str
+            Internal column name, its unit as suffix (``_m``, ``_kmh``) or ``km`` in it.
+
+        Returns
+        -------
+        str
+            The name with the unit of these output units (unchanged for metric).
+        """
         if not self.us:
             return name
         if name.endswith("_m"):
@@ -79,8 +144,18 @@ class OutputUnits:
         return name
 
     def divisor(self, name: str) -> float:
-        """What a value of the internal (metric) column ``name`` is divided by in these units
-        (1.0 where it is unchanged)."""
+        """What a value of an internal (metric) column is divided by in these units.
+
+        Parameters
+        ----------
+        name : str
+            Internal column name; ``k`` and ``k_required`` (m per %) convert as lengths.
+
+        Returns
+        -------
+        float
+            Metres per output length unit, km/h per mph, or km per mile; 1.0 where unchanged.
+        """
         if not self.us:
             return 1.0
         if name.endswith("_m") or name in ("k", "k_required"):
@@ -92,7 +167,18 @@ class OutputUnits:
         return 1.0
 
     def table(self, frame):
-        """A copy of ``frame`` with its columns renamed and converted to these units."""
+        """A copy of a table with its columns renamed and converted to these units.
+
+        Parameters
+        ----------
+        frame : DataFrame
+            Table with internal (metric) column names and values.
+
+        Returns
+        -------
+        DataFrame
+            The converted copy; only numeric columns are divided (:meth:`divisor`).
+        """
         if not self.us:
             return frame.copy()
         out = frame.copy()

@@ -20,10 +20,21 @@ import numpy as np
 
 @dataclass
 class VerticalAlignment:
-    """PVIs from road start to road end; ``lengths_m[i]`` is the curve at PVI ``i``.
+    """A vertical alignment of symmetric parabolic curves at PVIs, from road start to road end.
 
-    ``pvi_m`` and ``elev_m`` include the start and end points (whose curve
-    length is 0). Grades are fractions.
+    Parameters
+    ----------
+    pvi_m : ndarray
+        PVI chainages (m), increasing, including the start and end points.
+    elev_m : ndarray
+        PVI elevations (m).
+    lengths_m : ndarray
+        Length of the curve at each PVI (m); 0 at the start and end points.
+
+    Raises
+    ------
+    ValueError
+        When the PVIs do not increase, an end point carries a curve, or curves overlap.
     """
 
     pvi_m: np.ndarray
@@ -46,10 +57,18 @@ class VerticalAlignment:
 
     @property
     def grades(self) -> np.ndarray:
+        """Grades of the tangents between PVIs (fraction)."""
         return np.diff(self.elev_m) / np.diff(self.pvi_m)
 
     def curves(self) -> list[dict]:
-        """The interior PVIs with their curves, as plain numbers."""
+        """The interior PVIs with their curves, as plain numbers.
+
+        Returns
+        -------
+        list of dict
+            ``pvi_m, pvi_elev_m`` (m), ``g1, g2`` (fraction), ``length_m`` (m), ``kind``
+            ('crest' or 'sag'), ``a_pct`` (A, %) and ``k`` (K = L / A, m per %).
+        """
         g = self.grades
         out = []
         for i in range(1, len(self.pvi_m) - 1):
@@ -64,7 +83,18 @@ class VerticalAlignment:
         return out
 
     def z(self, x: np.ndarray) -> np.ndarray:
-        """Elevation at chainage ``x``: tangents, then each curve overwritten piece by piece."""
+        """Elevation at chainages: tangents, then each curve overwritten piece by piece.
+
+        Parameters
+        ----------
+        x : ndarray
+            Chainages (m).
+
+        Returns
+        -------
+        ndarray
+            Elevation (m): ``y_PVC + g1 u + (g2 - g1) / (2 L) u^2`` on a curve (u from its PVC).
+        """
         x = np.asarray(x, dtype=float)
         g = self.grades
         seg = np.clip(np.searchsorted(self.pvi_m, x, side="right") - 1, 0, len(g) - 1)
@@ -82,7 +112,18 @@ class VerticalAlignment:
         return y
 
     def grade(self, x: np.ndarray) -> np.ndarray:
-        """Grade (fraction) at chainage ``x``."""
+        """Grade at chainages.
+
+        Parameters
+        ----------
+        x : ndarray
+            Chainages (m).
+
+        Returns
+        -------
+        ndarray
+            Grade (fraction): ``g1 + (g2 - g1) u / L`` on a curve (u from its PVC).
+        """
         x = np.asarray(x, dtype=float)
         g = self.grades
         seg = np.clip(np.searchsorted(self.pvi_m, x, side="right") - 1, 0, len(g) - 1)
@@ -100,9 +141,30 @@ class VerticalAlignment:
 def random_alignment(rng: np.random.Generator, length_m: float, *, max_grade: float = 0.08,
                      a_range_pct=(1.0, 10.0), k_range=(3.0, 150.0), tangent_range_m=(100.0, 800.0),
                      start_elev_m: float = 200.0) -> VerticalAlignment:
-    """A random but designable alignment: grades within +-max_grade, A and K drawn
-    uniformly (A) and log-uniformly (K), tangents between curves in ``tangent_range_m``.
-    Consecutive crests (or sags) occur whenever the grade keeps falling (rising).
+    """A random but designable vertical alignment.
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+        Random source.
+    length_m : float
+        Road length (m).
+    max_grade : float, default 0.08
+        Steepest grade (fraction).
+    a_range_pct : (float, float), default (1, 10)
+        Range of A (%), drawn uniformly.
+    k_range : (float, float), default (3, 150)
+        Range of K (m per %), drawn log-uniformly.
+    tangent_range_m : (float, float), default (100, 800)
+        Range of the tangents between curves (m), drawn uniformly.
+    start_elev_m : float, default 200.0
+        Elevation at the start (m).
+
+    Returns
+    -------
+    VerticalAlignment
+        Grades within +-max_grade; consecutive crests (or sags) occur whenever the grade keeps
+        falling (rising).
     """
     pvi, lengths = [0.0], [0.0]
     g = [rng.uniform(-max_grade, max_grade) * 0.6]
@@ -137,10 +199,27 @@ def random_alignment(rng: np.random.Generator, length_m: float, *, max_grade: fl
 def plan_polyline(start_xy, heading_deg: float, elements, spacing_m: float = 5.0) -> np.ndarray:
     """Vertices of a centreline built from plan elements.
 
-    ``heading_deg`` is measured anticlockwise from the x axis (east).
-    ``elements``: ``("straight", length_m)`` or ``("arc", radius_m, deflection_deg)``
-    with a positive deflection turning left. Arcs are digitised every
-    ``spacing_m`` (chords), straights by their end points.
+    Parameters
+    ----------
+    start_xy : (float, float)
+        Start point (m).
+    heading_deg : float
+        Initial heading, anticlockwise from the x axis (east) (degrees).
+    elements : iterable
+        ``("straight", length_m)`` or ``("arc", radius_m, deflection_deg)`` with a positive
+        deflection turning left.
+    spacing_m : float, default 5.0
+        Chord length of digitised arcs (m); straights are given by their end points.
+
+    Returns
+    -------
+    ndarray, shape (n, 2)
+        Vertex coordinates (m).
+
+    Raises
+    ------
+    ValueError
+        On an unknown element.
     """
     x, y = float(start_xy[0]), float(start_xy[1])
     th = np.radians(heading_deg)

@@ -25,6 +25,7 @@ rounding rule give the value (the same rule reproduces every shipped row).
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -47,8 +48,19 @@ _NUMERIC_SET = SET_COLUMNS[5:-1]
 
 @dataclass(frozen=True)
 class CriteriaSet:
-    """One criteria set: its parameters (``params``, set units), speed table, and side
-    friction factors by speed (``friction``: speed, f_max) for the minimum-radius check."""
+    """One criteria set: its parameters, speed table and side friction factors.
+
+    Parameters
+    ----------
+    params : dict
+        One row of ``sets.csv``: heights and look-ahead (m or ft), beam angle (degrees),
+        reaction time (s), deceleration (m/s^2 or ft/s^2), formula constants, rounding step.
+    table : DataFrame
+        Tabulated speeds (km/h or mph) with design SSD (m or ft), crest and sag K (m or ft
+        per %).
+    friction : DataFrame, optional
+        ``speed, f_max`` (fraction) for the minimum-radius check.
+    """
 
     params: dict
     table: pd.DataFrame
@@ -56,21 +68,33 @@ class CriteriaSet:
 
     @property
     def name(self) -> str:
+        """The set's name, e.g. ``aashto-2018-metric``."""
         return self.params["name"]
 
     @property
     def metric(self) -> bool:
+        """True for a set in metres and km/h, False for feet and mph."""
         return self.params["units"] == "metric"
 
     @property
     def length_to_m(self) -> float:
+        """Metres per length unit of the set (1, or the international foot)."""
         return 1.0 if self.metric else metres_per("ft")
 
     @property
     def speed_to_kmh(self) -> float:
+        """km/h per speed unit of the set (1, or km/h per mph)."""
         return 1.0 if self.metric else kmh_per_mph()
 
     def sight_rules(self):
+        """The set's heights, beam angle and look-ahead for the sight computation, in metres.
+
+        Returns
+        -------
+        SightRules
+            Eye, object and headlight heights and look-ahead converted to m; beam angle in
+            degrees.
+        """
         f = self.length_to_m
         p = self.params
         return SightRules(eye_height_m=p["eye_height"] * f, object_height_m=p["object_height"] * f,
@@ -79,7 +103,26 @@ class CriteriaSet:
 
     # --- the set's formulas, in its own units (pipeline.evaluate.formulas, shared with the SQL)
     def ssd_calculated(self, speed, grade=None):
-        """Calculated (unrounded) SSD at ``speed`` (set units), level or on ``grade`` (fraction)."""
+        """Calculated (unrounded) stopping sight distance, level or on a grade.
+
+        Parameters
+        ----------
+        speed : array_like
+            Speed (set units: km/h or mph).
+        grade : array_like, optional
+            Grade in the direction of travel (fraction, negative downhill); ``None`` = level.
+
+        Returns
+        -------
+        ndarray
+            SSD (m or ft), :func:`~pipeline.evaluate.formulas.ssd_level` or
+            :func:`~pipeline.evaluate.formulas.ssd_on_grade` with the set's constants.
+
+        References
+        ----------
+        AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+        ch. 3.
+        """
         p = self.params
         if grade is None:
             return ssd_level(speed, p["reaction_time_s"], p["deceleration"], p["speed_coef"], p["braking_coef"])
@@ -97,9 +140,27 @@ class CriteriaSet:
         return out
 
     def ssd_design(self, speed, grade=None):
-        """Design SSD: on the level, the table at a tabulated speed, else the calculated value
-        rounded up to the set's step; on ``grade`` (fraction, in the direction of travel), the
-        calculated value on that grade rounded up (the tables are for level roads)."""
+        """Design stopping sight distance.
+
+        Parameters
+        ----------
+        speed : float or array_like
+            Speed (set units: km/h or mph).
+        grade : array_like, optional
+            Grade in the direction of travel (fraction); ``None`` = level.
+
+        Returns
+        -------
+        float or ndarray
+            Design SSD (m or ft). On the level, the table at a tabulated speed, else the
+            calculated value rounded up to the set's step; on a grade, the calculated value on
+            that grade rounded up (the tables are for level roads).
+
+        References
+        ----------
+        AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+        ch. 3.
+        """
         v = np.atleast_1d(np.asarray(speed, dtype=float))
         out = np.atleast_1d(round_up(self.ssd_calculated(v, grade), self.params["rounding_step"])).astype(float)
         if grade is None:
@@ -107,7 +168,27 @@ class CriteriaSet:
         return out if np.ndim(speed) or np.ndim(grade) else float(out[0])
 
     def k_design(self, speed, kind: str):
-        """Design K (set units) for a crest or sag: the table, else the formula on the design SSD."""
+        """Design rate of vertical curvature K for a crest or sag.
+
+        Parameters
+        ----------
+        speed : float or array_like
+            Speed (set units: km/h or mph).
+        kind : str
+            ``'crest'`` or ``'sag'``.
+
+        Returns
+        -------
+        float or ndarray
+            Design K (m or ft per %): the table at a tabulated speed, else
+            ``S^2 / crest_k_const`` (crest) or ``S^2 / (sag_k_const + sag_k_per_s S)`` (sag) on the
+            design SSD S, rounded by :func:`~pipeline.evaluate.formulas.k_round`.
+
+        References
+        ----------
+        AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+        ch. 3.
+        """
         v = np.atleast_1d(np.asarray(speed, dtype=float))
         s = np.atleast_1d(self.ssd_design(v))
         p = self.params
@@ -119,8 +200,21 @@ class CriteriaSet:
         return out if np.ndim(speed) else float(out[0])
 
     def supported_speed(self, sight, grade=None):
-        """Highest speed (set units) whose calculated SSD the sight distance meets: the
-        positive root of the SSD formula solved for V."""
+        """Highest speed whose calculated SSD a sight distance meets.
+
+        Parameters
+        ----------
+        sight : array_like
+            Available sight distance (m or ft, set units).
+        grade : array_like, optional
+            Grade in the direction of travel (fraction); ``None`` = level.
+
+        Returns
+        -------
+        ndarray
+            Speed (km/h or mph): the positive root of the SSD formula solved for V
+            (:func:`~pipeline.evaluate.formulas.speed_for_sight`).
+        """
         p = self.params
         b = p["speed_coef"] * p["reaction_time_s"]
         if grade is None:
@@ -154,8 +248,25 @@ def _check(frame: pd.DataFrame, columns: list[str], numeric: list[str], path: Pa
 
 
 def load_sets(extra_files: list[str] | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """All criteria sets: the shipped ones and those in ``extra_files``. Returns the sets
-    table and the speeds table."""
+    """All criteria sets: the shipped ones and those in ``extra_files``.
+
+    Parameters
+    ----------
+    extra_files : list of str, optional
+        The user's criteria CSVs (``criteria.files``), one set each.
+
+    Returns
+    -------
+    (DataFrame, DataFrame)
+        The sets table (columns :data:`SET_COLUMNS`) and the speeds table
+        (:data:`SPEED_COLUMNS`).
+
+    Raises
+    ------
+    InputError
+        On an unreadable file, a missing column, a non-numeric value, a duplicate name or
+        unknown units.
+    """
     base = sql_dir() / "criteria"
     sets = _check(_read_csv(base / "sets.csv", "sets"), SET_COLUMNS, _NUMERIC_SET, base / "sets.csv")
     speeds = _check(_read_csv(base / "speeds.csv", "speeds"), SPEED_COLUMNS, ["speed", "ssd_design", "crest_k", "sag_k"],
@@ -180,9 +291,25 @@ def load_sets(extra_files: list[str] | None = None) -> tuple[pd.DataFrame, pd.Da
 
 
 def get_set(name: str, extra_files: list[str] | None = None) -> CriteriaSet:
-    """The named criteria set; an unknown name stops the run naming the known ones."""
-    import difflib
+    """The named criteria set.
 
+    Parameters
+    ----------
+    name : str
+        Set name, e.g. ``aashto-2018-metric``.
+    extra_files : list of str, optional
+        The user's criteria CSVs.
+
+    Returns
+    -------
+    CriteriaSet
+        The set, with AASHTO's side friction factors in its units when it has none of its own.
+
+    Raises
+    ------
+    InputError
+        On an unknown name, naming the nearest and the known ones.
+    """
     sets, speeds = load_sets(extra_files)
     if name not in set(sets["name"]):
         near = difflib.get_close_matches(name, sets["name"].tolist(), n=1, cutoff=0.0)
@@ -204,7 +331,13 @@ def _read_friction(name: str) -> pd.DataFrame:
 
 
 def template() -> str:
-    """A CSV a user can fill in to add a set (one row per tabulated speed)."""
+    """A CSV a user can fill in to add a set (one row per tabulated speed).
+
+    Returns
+    -------
+    str
+        Header and two example rows, from ``aashto-2018-metric`` renamed.
+    """
     cols = SET_COLUMNS + [c for c in SPEED_COLUMNS if c != "set_name"]
     ex = get_set("aashto-2018-metric")
     rows = [",".join(cols)]

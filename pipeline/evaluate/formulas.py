@@ -38,35 +38,103 @@ def ssd_level(v, t, a, speed_coef, braking_coef):
     Returns
     -------
     ndarray
-        ``SSD = speed_coef V t + braking_coef V^2 / a`` (m or ft).
+        ``SSD = speed_coef V t + braking_coef V^2 / a`` (m or ft), e.g.
+        ``SSD = 0.278 V t + 0.039 V^2 / a`` in metric units.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
     """
     v = np.asarray(v, dtype=float)
     return speed_coef * v * t + braking_coef * v * v / a
 
 
 def ssd_on_grade(v, t, a, g, gravity, speed_coef, grade_coef):
-    """Calculated stopping sight distance on grade ``g`` (fraction, negative downhill):
-    ``SSD = speed_coef V t + V^2 / (grade_coef (a / gravity + g))`` (m or ft; grade_coef 254
-    metric, 30 US)."""
+    """Calculated stopping sight distance on a grade.
+
+    Parameters
+    ----------
+    v : array_like
+        Speed (km/h or mph).
+    t : array_like
+        Brake reaction time (s).
+    a : array_like
+        Deceleration rate (m/s^2 or ft/s^2).
+    g : array_like
+        Grade (fraction, negative downhill).
+    gravity : array_like
+        Acceleration of gravity (9.81 m/s^2 or 32.2 ft/s^2).
+    speed_coef, grade_coef : array_like
+        The set's unit constants (0.278 and 254 metric; 1.47 and 30 US).
+
+    Returns
+    -------
+    ndarray
+        ``SSD = speed_coef V t + V^2 / (grade_coef (a / gravity + g))`` (m or ft).
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     v = np.asarray(v, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         return speed_coef * v * t + v * v / (grade_coef * (a / gravity + np.asarray(g, dtype=float)))
 
 
 def round_up(x, step):
-    """A design value: ``x`` rounded up to a multiple of ``step`` (a hair of tolerance so an exact
-    multiple stays put)."""
+    """A design value: a calculated value rounded up to a multiple of a step.
+
+    Parameters
+    ----------
+    x : array_like
+        Calculated value (m or ft).
+    step : float
+        Rounding step (m or ft).
+
+    Returns
+    -------
+    ndarray
+        ``ceil(x / step - 1e-9) step``: a hair of tolerance so an exact multiple stays put.
+    """
     return np.ceil(np.asarray(x, dtype=float) / step - 1e-9) * step
 
 
 def k_round(k):
-    """A design K: the calculated K to 0.1, rounded up to a whole number."""
+    """A design K: the calculated K to 0.1, rounded up to a whole number.
+
+    Parameters
+    ----------
+    k : array_like
+        Calculated rate of vertical curvature (m or ft per %).
+
+    Returns
+    -------
+    ndarray
+        ``ceil(round(k, 1))`` (m or ft per %).
+    """
     return np.ceil(np.round(np.asarray(k, dtype=float), 1) - 1e-9)
 
 
 def speed_for_sight(s, lin, quad):
-    """The highest speed whose calculated SSD a sight distance ``s`` meets: the positive root of
-    ``quad V^2 + lin V - s = 0`` (the SSD formula solved for V)."""
+    """The highest speed whose calculated SSD a sight distance meets.
+
+    Parameters
+    ----------
+    s : array_like
+        Sight distance (m or ft).
+    lin : array_like
+        Coefficient of V in the SSD formula (``speed_coef t``).
+    quad : array_like
+        Coefficient of V^2 (``braking_coef / a``, or ``1 / (grade_coef (a / gravity + g))``).
+
+    Returns
+    -------
+    ndarray
+        ``V = (-lin + sqrt(lin^2 + 4 quad s)) / (2 quad)`` (km/h or mph), the positive root of
+        ``quad V^2 + lin V - s = 0``.
+    """
     s = np.asarray(s, dtype=float)
     with np.errstate(invalid="ignore"):
         return (-lin + np.sqrt(lin * lin + 4 * quad * s)) / (2 * quad)
@@ -88,6 +156,13 @@ def _arrow(fn):
 
 
 def register_formulas(con: duckdb.DuckDBPyConnection) -> None:
-    """Make the formulas callable from SQL on ``con`` (vectorised: one call per batch of rows)."""
+    """Make the formulas callable from SQL on a DuckDB connection.
+
+    Parameters
+    ----------
+    con : duckdb.DuckDBPyConnection
+        The connection; each function of :data:`FORMULAS` is registered under its name,
+        vectorised (one call per batch of rows, DOUBLE arguments and result).
+    """
     for name, (fn, nargs) in FORMULAS.items():
         con.create_function(name, _arrow(fn), [DOUBLE] * nargs, DOUBLE, type="arrow")

@@ -14,19 +14,45 @@ import duckdb
 import pandas as pd
 
 from ..core.config import Config
+from ..core.sqlrun import parquet_view, sql_text
 from .criteria import CriteriaSet
 from .formulas import register_formulas
-from ..core.sqlrun import sql_text
 
 
 @dataclass
 class Evaluation:
+    """What the SQL rules give.
+
+    Parameters
+    ----------
+    curves : DataFrame
+        Every curve with its verdict.
+    inventory : DataFrame
+        Ranked deficient stretches.
+    summary : DataFrame
+        Network summary by road class.
+    """
     curves: pd.DataFrame      # every curve with its verdict
     inventory: pd.DataFrame   # ranked deficient stretches
     summary: pd.DataFrame     # network summary by road class
 
 
 def params_table(cfg: Config) -> pd.DataFrame:
+    """The run settings the SQL rules read, as a one-row table.
+
+    Parameters
+    ----------
+    cfg : Config
+        Run settings (``[inventory]``, ``[confidence]``, ``criteria.grade_adjusted``,
+        ``profile.step_m``).
+
+    Returns
+    -------
+    DataFrame
+        One row: severity bands and reconstruction gap (km/h), weights, AADT references
+        (vehicles/day), probabilities (fraction), significances (standard deviations), lengths
+        (m).
+    """
     bands = cfg["inventory.severity_bands_kmh"]
     w = cfg["inventory.priority_weights"]
     return pd.DataFrame([{
@@ -50,11 +76,25 @@ def params_table(cfg: Config) -> pd.DataFrame:
 
 def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, hazards: pd.DataFrame,
              cset: CriteriaSet, cfg: Config) -> Evaluation:
-    """Run the SQL rules over the per-road results (see ``sql/evaluate.sql`` for the columns
-    each table needs). ``profiles`` and ``keypoints`` may be DataFrames or lists of Parquet files,
-    which DuckDB reads as it goes without loading them whole."""
-    from ..core.sqlrun import parquet_view
+    """Run the SQL rules over the per-road results.
 
+    Parameters
+    ----------
+    roads, curves, hazards : DataFrame
+        Per-road tables (see ``sql/evaluate.sql`` for the columns each needs; m, km/h).
+    profiles, keypoints : DataFrame or list of str
+        DataFrames or lists of Parquet files, which DuckDB reads as it goes without loading
+        them whole.
+    cset : CriteriaSet
+        The criteria set judged against.
+    cfg : Config
+        Run settings (:func:`params_table`).
+
+    Returns
+    -------
+    Evaluation
+        Curves with verdicts, the ranked inventory and the summary.
+    """
     set_row = pd.DataFrame([cset.params | {"length_to_m": cset.length_to_m, "speed_to_kmh": cset.speed_to_kmh}])
     con = duckdb.connect()
     try:

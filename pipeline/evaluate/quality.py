@@ -27,9 +27,14 @@ def cannot_judge(ground_kind: str, spacing_m: float | None, resolution_m: float 
     spacing_m : float or None
         DEM cell or ground-point spacing (m).
     resolution_m : float or None
-        Shortest feature the profile resolves (m), :func:`pipeline.corridor.resolution_length_m`.
+        Shortest feature the profile resolves (m), :func:`pipeline.profile.corridor.resolution_length_m`.
     max_cell_for_verdict_m : float
         DEM cells coarser than this get no curve verdict (``confidence.max_cell_for_verdict_m``).
+
+    Returns
+    -------
+    list of str
+        The sentences, at least one.
 
     Notes
     -----

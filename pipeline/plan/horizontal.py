@@ -39,8 +39,11 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from scipy.signal import savgol_coeffs, savgol_filter
 
 from ..core.config import section_defaults
+from ..core.estimators import mad_sigma
+from ..profile.stations import Polyline, run_lengths
 
 # the [plan] settings' defaults, and the station step of the heading analysis
 DEFAULTS = {k: v for k, v in section_defaults("plan").items() if k in ("smooth_m", "max_radius_m", "min_length_m",
@@ -52,14 +55,37 @@ HCURVE_COLUMNS = ["hcurve_no", "start_m", "end_m", "length_m", "radius_m", "defl
 
 def heading_curvature(line, step_m: float, smooth_m: float, poly=None
                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
-    """Chainage (m), smoothed heading (rad, anticlockwise from east, unwrapped), curvature
-    (1/m, positive turning left) every ``step_m`` along ``line``, and the standard deviation of
-    the curvature's noise (1/m): the heading's own high-frequency scatter (1.4826 MAD of raw
-    minus smoothed) times the noise gain of the derivative filter."""
-    from scipy.signal import savgol_coeffs, savgol_filter
+    """Smoothed heading and curvature every ``step_m`` along a centreline, with the curvature's noise.
 
-    from ..profile.stations import Polyline
+    Parameters
+    ----------
+    line : shapely LineString
+        The centreline in a metric working CRS (m).
+    step_m : float
+        Spacing of the analysis points (m).
+    smooth_m : float
+        Length of the Savitzky-Golay window (m); below five points no smoothing is done.
+    poly : Polyline, optional
+        ``line`` as a :class:`~pipeline.profile.stations.Polyline`, if already built.
 
+    Returns
+    -------
+    chainage : ndarray
+        Chainage of the points (m).
+    heading : ndarray
+        Smoothed heading (radians, anticlockwise from east, unwrapped).
+    curvature : ndarray
+        Its derivative (1/m, positive turning left).
+    noise : float
+        Standard deviation of the curvature's noise (1/m): the heading's own high-frequency
+        scatter (:func:`~pipeline.core.estimators.mad_sigma` of raw minus smoothed) times
+        :func:`derivative_noise_gain`.
+
+    References
+    ----------
+    Savitzky & Golay (1964), *Analytical Chemistry* 36(8) 1627-1639 (quadratic filter);
+    Hampel (1974) for the MAD.
+    """
     poly = poly or Polyline(line)
     length = poly.length
     n = max(int(np.floor(length / step_m)) + 1, 2)
@@ -74,18 +100,62 @@ def heading_curvature(line, step_m: float, smooth_m: float, poly=None
     if win >= 5 and n > win:
         smooth = savgol_filter(head, win, 2)
         curv = savgol_filter(head, win, 2, deriv=1, delta=h)
-        resid = head - smooth
-        noise = 1.4826 * np.median(np.abs(resid - np.median(resid)))
-        gain = float(np.sqrt(np.sum(savgol_coeffs(win, 2, deriv=1, delta=h) ** 2)))
+        noise = mad_sigma(head - smooth)
+        gain = derivative_noise_gain(win, h)
         return ch, smooth, curv, noise * gain
     curv = np.gradient(head, h) if n > 2 else np.zeros(n)
     return ch, head, curv, 0.0
 
 
+
+def derivative_noise_gain(window: int, step_m: float) -> float:
+    """Standard deviation of a Savitzky-Golay derivative of white noise of unit sd.
+
+    Parameters
+    ----------
+    window : int
+        Filter window (samples, odd).
+    step_m : float
+        Sample spacing (m).
+
+    Returns
+    -------
+    float
+        ``sqrt(sum c_k^2)`` (1/m) over the coefficients c_k of the quadratic first-derivative
+        filter: a linear filter's output variance is the input variance times the sum of its
+        squared weights.
+
+    References
+    ----------
+    Savitzky, A. and Golay, M. J. E. (1964). *Analytical Chemistry* 36(8), 1627-1639.
+    """
+    return float(np.sqrt(np.sum(savgol_coeffs(window, 2, deriv=1, delta=step_m) ** 2)))
+
+
 def fit_circle(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:
-    """Least-squares circle through points: Kasa's algebraic fit, then geometric (orthogonal
-    distance) refinement by Gauss-Newton on centre and radius. Returns centre x, centre y,
-    radius (m) and RMS orthogonal distance (m)."""
+    """Least-squares circle through points.
+
+    Parameters
+    ----------
+    x, y : array_like
+        Point coordinates (m).
+
+    Returns
+    -------
+    (float, float, float, float)
+        Centre x, centre y, radius and RMS orthogonal distance of the points (m).
+
+    Notes
+    -----
+    Kasa's algebraic fit (linear least squares of ``u^2 + v^2 = p u + q v + c`` on centred
+    coordinates), then geometric (orthogonal distance) refinement by Gauss-Newton on centre and
+    radius, minimising ``sum (|x_i - c| - r)^2``.
+
+    References
+    ----------
+    Kasa (1976), *IEEE Trans. Instrumentation and Measurement* IM-25(1) 8-14; N. Chernov,
+    *Circular and Linear Regression*, CRC Press 2010.
+    """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     mx, my = x.mean(), y.mean()
@@ -115,8 +185,6 @@ def _detect(line, opts: dict, smooth_m: float, poly) -> list[dict]:
     sign = (np.sign(curv) * (np.abs(curv) > k_min)).astype(int)
     # a bend briefly dipping under the threshold (noise) is still one bend
     gap = int(round(opts["smooth_m"] / (ch[1] - ch[0])))
-    from ..profile.stations import run_lengths
-
     for a, b in run_lengths(sign == 0):
         if 0 < a and b < len(sign) and b - a <= gap and sign[a - 1] == sign[b]:
             sign[a:b] = sign[a - 1]
@@ -158,14 +226,30 @@ def _detect(line, opts: dict, smooth_m: float, poly) -> list[dict]:
 
 
 def horizontal_curves(line, opts: dict | None = None, poly=None) -> pd.DataFrame:
-    """Circular curves of a centreline (working CRS, metres); see module notes.
+    """Circular curves of a centreline (see the module notes).
 
+    Parameters
+    ----------
+    line : shapely LineString
+        The centreline in a metric working CRS (m).
+    opts : dict, optional
+        ``smooth_m``, ``max_radius_m``, ``min_length_m`` (m), ``min_deflection_deg``
+        (degrees) and ``step_m`` (m), over :data:`DEFAULTS`.
+    poly : Polyline, optional
+        ``line`` as a Polyline, if already built.
+
+    Returns
+    -------
+    DataFrame
+        One row per curve, columns :data:`HCURVE_COLUMNS` (chainages, length, radius and RMSE
+        in m; deflection in degrees; direction 'left' or 'right').
+
+    Notes
+    -----
     Two scales: heading smoothed over ``smooth_m`` finds sharp curves close together; smoothed
     over three times that, it finds long flat curves that noise breaks up at the first scale.
     A coarse-scale curve replaces the fine-scale pieces inside it when they all turn its way.
     """
-    from ..profile.stations import Polyline
-
     opts = DEFAULTS | (opts or {})
     poly = poly or Polyline(line)
     length = poly.length
@@ -187,22 +271,78 @@ def horizontal_curves(line, opts: dict | None = None, poly=None) -> pd.DataFrame
 
 
 def min_radius_m(speed_kmh, e_max: float, f_max) -> np.ndarray:
-    """Minimum radius (m) for speed V (km/h): V^2 / (127 (e + f)), AASHTO Green Book ch. 3
-    (e, f as fractions)."""
+    """Minimum radius of a horizontal curve for a design speed (metric).
+
+    Parameters
+    ----------
+    speed_kmh : array_like
+        Speed V (km/h).
+    e_max : float
+        Maximum superelevation e (fraction).
+    f_max : array_like
+        Side friction factor f (fraction), tabulated by speed.
+
+    Returns
+    -------
+    ndarray
+        ``R_min = V^2 / (127 (e + f))`` (m).
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     v = np.asarray(speed_kmh, dtype=float)
     return v**2 / (127.0 * (e_max + np.asarray(f_max, dtype=float)))
 
 
 def min_radius_ft(speed_mph, e_max: float, f_max) -> np.ndarray:
-    """Minimum radius (ft) for speed V (mph): V^2 / (15 (e + f)), AASHTO Green Book ch. 3."""
+    """Minimum radius of a horizontal curve for a design speed (US customary).
+
+    Parameters
+    ----------
+    speed_mph : array_like
+        Speed V (mph).
+    e_max : float
+        Maximum superelevation e (fraction).
+    f_max : array_like
+        Side friction factor f (fraction).
+
+    Returns
+    -------
+    ndarray
+        ``R_min = V^2 / (15 (e + f))`` (ft).
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     v = np.asarray(speed_mph, dtype=float)
     return v**2 / (15.0 * (e_max + np.asarray(f_max, dtype=float)))
 
 
 def sight_line_offset(radius, sight):
-    """Horizontal sight line offset HSO = R (1 - cos(28.65 S / R)), angle in degrees (AASHTO
-    Green Book ch. 3), any consistent length unit; R is the radius of the inside lane's
-    centre."""
+    """Horizontal sight line offset needed on a curve for a sight distance.
+
+    Parameters
+    ----------
+    radius : array_like
+        Radius R of the centre of the inside lane (m, or any length unit).
+    sight : array_like
+        Sight distance S (same unit).
+
+    Returns
+    -------
+    ndarray
+        ``HSO = R (1 - cos(28.65 S / R))``, angle in degrees (same unit as R); the lateral
+        clearance from the centre of the inside lane, valid while S is shorter than the curve.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
     R = np.asarray(radius, dtype=float)
     S = np.asarray(sight, dtype=float)
     return R * (1.0 - np.cos(np.radians(28.65 * S / R)))

@@ -60,6 +60,11 @@ def running_mean(x: np.ndarray, y: np.ndarray, width: np.ndarray | float) -> np.
     ndarray
         The windowed mean at every ``x``: the exact integral of the linear interpolant
         (trapezoid rule) divided by the clipped window's length.
+
+    Notes
+    -----
+    ``mean(x) = (F(x + w/2) - F(x - w/2)) / w`` with F the running integral of the
+    piecewise-linear function (cumulative trapezoids plus the partial piece).
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -139,6 +144,15 @@ def cell_crossing_filter(chain_m: np.ndarray, z_m: np.ndarray, heading_rad: np.n
     (ndarray, ndarray)
         The filtered profile (m) and, per sample, the filter's equivalent box length
         ``sqrt(W1^2 + W2^2)`` (m), used by :func:`deconvolved_length`.
+
+    Notes
+    -----
+    A moving average of width W has zeros at frequencies k / W, so one over exactly a period
+    of the ripple removes it with all its harmonics.
+
+    References
+    ----------
+    Smith, *The Scientist and Engineer's Guide to Digital Signal Processing*, 1997, ch. 15.
     """
     p1, p2 = crossing_periods(heading_rad, cell_m, max_factor * cell_m)
     once = running_mean(chain_m, z_m, p1)
@@ -149,9 +163,23 @@ def cell_crossing_filter(chain_m: np.ndarray, z_m: np.ndarray, heading_rad: np.n
 def deconvolved_length(length_m: np.ndarray, box_m: np.ndarray) -> np.ndarray:
     """Curve length before a box filter of equivalent length ``box_m`` widened it.
 
+    Parameters
+    ----------
+    length_m : array_like
+        Length of the fitted curve (m), measured on the filtered profile.
+    box_m : array_like
+        Equivalent box length of the filter applied (m), from :func:`cell_crossing_filter`.
+
+    Returns
+    -------
+    ndarray
+        ``sqrt(max(L_fit^2 - W^2, 0))`` (m).
+
+    Notes
+    -----
     A symmetric parabolic curve has uniform curvature over its length L; a running mean of
     length W spreads it, and second moments add: ``L_fit^2 = L^2 + W^2`` (each box's
-    variance is length^2 / 12). Returns ``sqrt(max(L_fit^2 - W^2, 0))`` (m).
+    variance is length^2 / 12).
     """
     L = np.asarray(length_m, dtype=float)
     W = np.asarray(box_m, dtype=float)
@@ -219,9 +247,23 @@ def _windowed_mean(values: np.ndarray, size: int, axis: int, min_share: float) -
 
 
 def platform_cost(section_z: np.ndarray, offset_step_m: float, width_samples: int) -> np.ndarray:
-    """Cost of taking each offset as the carriageway's centre, per station (see
-    :func:`carriageway_offsets`): the mean absolute cross-slope over the band of
-    ``width_samples`` samples, less the mean of the two flanks beyond it."""
+    """Cost of taking each offset as the carriageway's centre, per station.
+
+    Parameters
+    ----------
+    section_z : ndarray, shape (stations, offsets)
+        Ground elevations on the cross-sections (m); NaN where unknown.
+    offset_step_m : float
+        Spacing of the offsets (m).
+    width_samples : int
+        Carriageway width, in offset samples.
+
+    Returns
+    -------
+    ndarray, shape (stations, offsets)
+        The mean absolute cross-slope (fraction) over the band of ``width_samples`` samples,
+        less the mean of the two flanks beyond it (see :func:`carriageway_offsets`).
+    """
     slope = np.abs(np.gradient(section_z, offset_step_m, axis=1))
     inside = _windowed_mean(slope, width_samples, 1, 0.5)
     side = _windowed_mean(slope, max(width_samples // 2, 1), 1, 0.5)
@@ -241,15 +283,26 @@ def _mean_along(cost: np.ndarray, n_along: int) -> np.ndarray:
 
 
 def dem_vertical_error_m(cell_m: float | None) -> float:
-    """Vertical error (m, one standard deviation) assumed for a DEM of this cell size when the
-    user states none (``ground.vertical_error_m``).
+    """Vertical error assumed for a DEM of this cell size when the user states none.
 
-    0.10 m up to 3 m cells: airborne LiDAR, whose common specification is an RMSEz of 10 cm
-    (USGS Lidar Base Specification, quality level 2; from memory). 0.5 m up to 15 m cells:
-    national DEMs made by photogrammetry or from LiDAR resampled (from memory, typical of
-    published accuracy statements). 1.5 m beyond: global 30 m products, whose relative
-    (point-to-point) error is of this order (from memory). The assumption is stated in
-    ``run.json`` and the report; the residuals about the fit replace it where they are larger.
+    Parameters
+    ----------
+    cell_m : float or None
+        DEM cell size (m); ``None`` (ground points) gives 0.
+
+    Returns
+    -------
+    float
+        One standard deviation (m): 0.10 up to 3 m cells, 0.5 up to 15 m, 1.5 beyond.
+
+    Notes
+    -----
+    0.10 m: airborne LiDAR, whose common specification is an RMSEz of 10 cm (USGS Lidar
+    Base Specification, quality level 2; from memory). 0.5 m: national DEMs made by
+    photogrammetry or from LiDAR resampled (from memory, typical of published accuracy
+    statements). 1.5 m: global 30 m products, whose relative (point-to-point) error is of this
+    order (from memory). The assumption is stated in ``run.json`` and the report; the
+    residuals about the fit replace it where they are larger (``ground.vertical_error_m``).
     """
     if cell_m is None or not np.isfinite(cell_m):
         return 0.0
@@ -262,11 +315,28 @@ def dem_vertical_error_m(cell_m: float | None) -> float:
 
 def resolution_length_m(cell_m: float | None, spacing_m: float | None, step_m: float,
                         filter_m: float = 0.0) -> float:
-    """Shortest feature (m) the ground data can resolve along a road.
+    """Shortest feature the ground data can resolve along a road.
 
+    Parameters
+    ----------
+    cell_m : float or None
+        DEM cell size (m).
+    spacing_m : float or None
+        Typical spacing of ground points (m).
+    step_m : float
+        Station step of the profile (m).
+    filter_m : float, default 0.0
+        Equivalent length of the filter applied to the profile (m).
+
+    Returns
+    -------
+    float
+        ``max(2 max(cell, spacing), step, filter)`` (m).
+
+    Notes
+    -----
     Two samples per feature at the data's own spacing (the Nyquist limit; a DEM's spacing is
-    its cell), never less than the profile's station step or the filter applied to the
-    profile (common practice, no source).
+    its cell), never less than the station step or the filter (common practice, no source).
     """
     own = [v for v in (cell_m, spacing_m) if v is not None and np.isfinite(v) and v > 0]
     return float(max([2.0 * max(own) if own else 0.0, step_m, filter_m]))

@@ -17,21 +17,52 @@ import numpy as np
 import pandas as pd
 import shapely
 
+from ..profile.stations import run_lengths
+
 
 def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float, direction: int,
                 eye_height_m: float, object_height_m: float = 0.0, step_m: float = 1.0,
                 road_length_m: float | None = None) -> tuple[float, float] | None:
-    """Chainage range (from, to; from <= to) of road surface hidden beyond a crest from drivers
-    ``sight_m`` back, travelling in ``direction`` (+1 with the chainage, -1 against it); ``None``
-    when nothing beyond the crest is hidden. ``profile(x)`` gives the road elevation (m).
+    """Chainage range of road surface hidden beyond a crest from drivers ``sight_m`` back.
 
-    ``crest_pvt_m`` is the end of the curve in the direction of travel; the curve is taken as
-    symmetric about ``crest_pvi_m``. Road points ``q`` are scanned from the start of the curve
-    (a point on the straight approach grade cannot be hidden from a driver on the same grade)
-    to ``S`` plus a curve length beyond its end, so the zone begins where the surface is first
-    hidden -- where the sight line grazes the crest, before the PVI when ``S`` is long -- and
-    ends where it reappears. Of several hidden runs, the one nearest the PVI is this crest's.
-    Geometry of the line of sight: AASHTO Green Book ch. 3 (eye height, object on the road)."""
+    Parameters
+    ----------
+    profile : callable
+        ``profile(x)``: road elevation (m) at chainages ``x`` (m).
+    crest_pvi_m, crest_pvt_m : float
+        The crest's PVI and its end in the direction of travel (m); the curve is taken as
+        symmetric about the PVI.
+    sight_m : float
+        Distance S back from which the driver looks (m), the required SSD.
+    direction : int
+        +1 travelling with the chainage, -1 against it.
+    eye_height_m, object_height_m : float
+        Eye height and object height (m); default object 0 (the road surface).
+    step_m : float, default 1.0
+        Spacing of the scanned points and of the checks along each sight line (m).
+    road_length_m : float, optional
+        Road length (m); points beyond it are not scanned.
+
+    Returns
+    -------
+    (float, float) or None
+        ``(from_m, to_m)`` with from <= to (m); ``None`` when nothing is hidden.
+
+    Notes
+    -----
+    A point q is hidden when the line from the eye at q - S to the object at q passes below
+    the road between. Points are scanned from the start of the curve (a point on the straight
+    approach grade cannot be hidden from a driver on the same grade) to S plus a curve length
+    beyond its end, so the zone begins where the surface is first hidden -- where the sight
+    line grazes the crest, before the PVI when S is long -- and ends where it reappears. Of
+    several hidden runs, the one nearest the PVI is this crest's.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3 (eye height, object on the road). Harwood & Bauer 2015, *TRR* 2486 (what a crest
+    hides).
+    """
     S = float(sight_m)
     if not S > 0:
         return None
@@ -44,6 +75,16 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
     q, p = q[keep], p[keep]
     if not len(q):
         return None
+    hidden = _hidden(profile, q, p, S, direction, step_m, eye_height_m, object_height_m)
+    if not hidden.any():
+        return None
+    return _nearest_run(q, hidden, crest_pvi_m)
+
+
+def _hidden(profile, q, p, S: float, direction: int, step_m: float, eye_height_m: float,
+            object_height_m: float) -> np.ndarray:
+    """Whether the road at each ``q`` is hidden from the eye at ``p`` (``S`` back): the road
+    rises above the straight sight line somewhere between (checked every ``step_m`` or so)."""
     W = max(int(np.ceil(S / step_m)), 2)
     frac = np.arange(1, W) / W
     between = p[:, None] + direction * S * frac[None, :]
@@ -54,10 +95,11 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
     with np.errstate(invalid="ignore"):
         hidden = np.any(zb > sight_line + 1e-9, axis=1)
     hidden &= np.isfinite(zq) & np.isfinite(zp)
-    if not hidden.any():
-        return None
-    from ..profile.stations import run_lengths
+    return hidden
 
+
+def _nearest_run(q: np.ndarray, hidden: np.ndarray, crest_pvi_m: float) -> tuple[float, float]:
+    """The chainage range (from <= to) of the hidden run nearest the PVI (0 if it holds it)."""
     runs = run_lengths(hidden)
     dist = [0.0 if min(q[a], q[b - 1]) <= crest_pvi_m <= max(q[a], q[b - 1])
             else min(abs(q[a] - crest_pvi_m), abs(q[b - 1] - crest_pvi_m)) for a, b in runs]
@@ -67,9 +109,20 @@ def hidden_zone(profile, crest_pvi_m: float, crest_pvt_m: float, sight_m: float,
 
 
 def network_junctions(lines: dict[str, object], snap_m: float) -> dict[str, list[tuple[float, str]]]:
-    """Junctions found in the road network itself: where one road's end lies on another road
-    (within ``snap_m``), both roads get a junction at that point. ``lines`` maps road id to its
-    centreline in one metric CRS."""
+    """Junctions found in the road network itself, where one road's end lies on another road.
+
+    Parameters
+    ----------
+    lines : dict of str to LineString
+        Road id -> centreline, all in one metric CRS (m).
+    snap_m : float
+        How close a road's end must come to another road (m).
+
+    Returns
+    -------
+    dict of str to list of (float, str)
+        Road id -> ``(chainage_m, label)`` of its junctions; both roads get one.
+    """
     ids = list(lines)
     geoms = np.array([lines[i] for i in ids], dtype=object)
     tree = shapely.STRtree(geoms)
@@ -89,8 +142,26 @@ def network_junctions(lines: dict[str, object], snap_m: float) -> dict[str, list
 
 def hazards_in_zone(zone: tuple[float, float] | None, direction: int, hcurves: pd.DataFrame,
                     junctions: list[tuple[float, str]]) -> dict:
-    """The hidden hazards in a zone: a horizontal curve beginning in it (in the direction of
-    travel) and junctions or accesses lying in it."""
+    """The hazards hidden in a zone beyond a crest.
+
+    Parameters
+    ----------
+    zone : (float, float) or None
+        Hidden chainage range (m), from :func:`hidden_zone`.
+    direction : int
+        +1 travelling with the chainage, -1 against it.
+    hcurves : DataFrame
+        Horizontal curves with ``start_m``, ``end_m``, ``radius_m`` (m).
+    junctions : list of (float, str)
+        ``(chainage_m, label)`` of junctions and accesses.
+
+    Returns
+    -------
+    dict
+        ``hidden_from_m, hidden_to_m`` (m), ``hidden_hazard`` ('none', 'horizontal curve',
+        'junction' or 'both'), ``hazard_chainage_m`` (m, the first met) and ``hazard_detail``.
+        A horizontal curve counts where it begins, in the direction of travel, in the zone.
+    """
     out = {"hidden_from_m": np.nan, "hidden_to_m": np.nan, "hidden_hazard": "none",
            "hazard_chainage_m": np.nan, "hazard_detail": ""}
     if zone is None:

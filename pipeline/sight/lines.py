@@ -33,14 +33,33 @@ from dataclasses import dataclass
 
 import numpy as np
 
-# limit codes (profiles.parquet carries them as text)
-LOS, BEAM, LOOKAHEAD, END = 0, 1, 2, 3
-LIMIT_NAMES = np.array(["line of sight", "headlight", "look-ahead", "end of profile"], dtype=object)
+from .attribution import BEAM, END, LIMIT_NAMES, LOOKAHEAD, LOS, attribute  # noqa: F401  (re-exported)
+from .closed_form import (crest_length_formula, crest_sight_formula, sag_length_formula,  # noqa: F401
+                          sag_sight_formula)  # re-exported: the closed forms live in closed_form
 
 
 @dataclass(frozen=True)
 class SightRules:
-    """Heights (m), beam angle (degrees) and look-ahead (m) for sight distance."""
+    """Heights, beam angle and look-ahead for sight distance.
+
+    Parameters
+    ----------
+    eye_height_m : float, default 1.08
+        Driver's eye height above the road (m), positive.
+    object_height_m : float, default 0.60
+        Object height (m), not negative.
+    headlight_height_m : float, default 0.60
+        Headlight height (m), positive.
+    beam_angle_deg : float, default 1.0
+        Upward divergence of the headlight beam (degrees), from 0 up to 10.
+    lookahead_m : float, default 400.0
+        Farthest distance checked (m), positive.
+
+    References
+    ----------
+    Defaults: AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th
+    ed., 2018, ch. 3.
+    """
 
     eye_height_m: float = 1.08
     object_height_m: float = 0.60
@@ -56,6 +75,58 @@ class SightRules:
             raise ValueError(f"object_height_m must not be negative, got {self.object_height_m!r}")
         if not 0 <= self.beam_angle_deg < 10:
             raise ValueError(f"beam_angle_deg must be between 0 and 10, got {self.beam_angle_deg!r}")
+
+
+def _line_of_sight(Z: np.ndarray, d: np.ndarray, first_gap: np.ndarray, z0: np.ndarray, h: float,
+                   rules: SightRules, rows: np.ndarray, los: np.ndarray, los_k: np.ndarray) -> None:
+    """Line-of-sight distance and blocking point for the eyes ``rows``, written into ``los`` and
+    ``los_k`` (see :func:`_ahead`).
+
+    The object stays in view while its slope from the eye is not below the steepest slope from
+    the eye to the road surface before it; the first hidden object position is interpolated
+    linearly between look-ahead samples.
+    """
+    W = Z.shape[1]
+    Zr = Z[rows]
+    valid = np.arange(W)[None, :] < first_gap[rows, None]
+    eye = (z0[rows] + rules.eye_height_m)[:, None]
+    with np.errstate(invalid="ignore"):
+        s_road = np.where(valid, (Zr - eye) / d[None, :], -np.inf)
+    run = np.maximum.accumulate(s_road, axis=1)
+    with np.errstate(invalid="ignore"):
+        f = s_road[:, 1:] + rules.object_height_m / d[None, 1:] - run[:, :-1]  # >= 0 while in view
+    hidden = (f < 0) & valid[:, 1:]
+    has = hidden.any(axis=1)
+    r = np.flatnonzero(has)
+    k = hidden.argmax(axis=1)[has] + 1  # first hidden sample (the first is always in view)
+    f1 = f[r, k - 1]
+    f0 = np.where(k >= 2, f[r, np.maximum(k - 2, 0)], np.inf)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        frac = np.where(np.isfinite(f0), f0 / (f0 - f1), 1.0)
+    los[rows[r]] = d[k - 1] + np.nan_to_num(np.clip(frac, 0.0, 1.0), nan=1.0) * h
+    masked = np.where(np.arange(W)[None, :] < k[:, None], s_road[r], -np.inf)
+    los_k[rows[r]] = masked.argmax(axis=1)  # the blocking point: steepest road point before
+
+
+def _headlight(Z: np.ndarray, d: np.ndarray, first_gap: np.ndarray, z0: np.ndarray, g0: np.ndarray,
+               h: float, rules: SightRules, rows: np.ndarray, beam: np.ndarray, beam_k: np.ndarray) -> None:
+    """Headlight reach and hit point for the eyes ``rows``, written into ``beam`` and ``beam_k``
+    (see :func:`_ahead`): where the clearance of the beam's upper edge above the road first
+    falls to zero, interpolated linearly between look-ahead samples."""
+    W = Z.shape[1]
+    tb = np.tan(np.radians(rules.beam_angle_deg))
+    Zr = Z[rows]
+    valid = np.arange(W)[None, :] < first_gap[rows, None]
+    clear = (z0[rows] + rules.headlight_height_m)[:, None] + d[None, :] * (g0[rows] + tb)[:, None] - Zr
+    hit = (clear <= 0) & valid
+    hasb = hit.any(axis=1)
+    rb = np.flatnonzero(hasb)
+    kb = hit.argmax(axis=1)[hasb]
+    c1 = clear[rb, kb]
+    cprev = np.where(kb > 0, clear[rb, np.maximum(kb - 1, 0)], rules.headlight_height_m)
+    dprev = np.where(kb > 0, d[np.maximum(kb - 1, 0)], 0.0)
+    beam[rows[rb]] = dprev + np.clip(cprev / (cprev - c1), 0.0, 1.0) * h
+    beam_k[rows[rb]] = kb
 
 
 def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: SightRules,
@@ -77,47 +148,12 @@ def _ahead(Z: np.ndarray, z0: np.ndarray, g0: np.ndarray, h: float, rules: Sight
     gap = np.isnan(Z)
     first_gap = np.where(gap.any(axis=1), gap.argmax(axis=1), W)
     avail = np.where(first_gap > 0, d[np.maximum(first_gap - 1, 0)], 0.0)
-
     rows = np.flatnonzero(want_los) if want_los is not None else np.arange(E)
     if len(rows):
-        # line of sight: the object stays in view while its slope from the eye is not below the
-        # steepest slope from the eye to the road surface before it
-        Zr = Z[rows]
-        valid = np.arange(W)[None, :] < first_gap[rows, None]
-        eye = (z0[rows] + rules.eye_height_m)[:, None]
-        with np.errstate(invalid="ignore"):
-            s_road = np.where(valid, (Zr - eye) / d[None, :], -np.inf)
-        run = np.maximum.accumulate(s_road, axis=1)
-        with np.errstate(invalid="ignore"):
-            f = s_road[:, 1:] + rules.object_height_m / d[None, 1:] - run[:, :-1]  # >= 0 while in view
-        hidden = (f < 0) & valid[:, 1:]
-        has = hidden.any(axis=1)
-        r = np.flatnonzero(has)
-        k = hidden.argmax(axis=1)[has] + 1  # first hidden sample (the first is always in view)
-        f1 = f[r, k - 1]
-        f0 = np.where(k >= 2, f[r, np.maximum(k - 2, 0)], np.inf)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            frac = np.where(np.isfinite(f0), f0 / (f0 - f1), 1.0)
-        los[rows[r]] = d[k - 1] + np.nan_to_num(np.clip(frac, 0.0, 1.0), nan=1.0) * h
-        masked = np.where(np.arange(W)[None, :] < k[:, None], s_road[r], -np.inf)
-        los_k[rows[r]] = masked.argmax(axis=1)  # the blocking point: steepest road point before
-
+        _line_of_sight(Z, d, first_gap, z0, h, rules, rows, los, los_k)
     rows = np.flatnonzero(want_beam) if want_beam is not None else np.arange(E)
     if len(rows):
-        # headlight: clearance of the beam's upper edge above the road
-        tb = np.tan(np.radians(rules.beam_angle_deg))
-        Zr = Z[rows]
-        valid = np.arange(W)[None, :] < first_gap[rows, None]
-        clear = (z0[rows] + rules.headlight_height_m)[:, None] + d[None, :] * (g0[rows] + tb)[:, None] - Zr
-        hit = (clear <= 0) & valid
-        hasb = hit.any(axis=1)
-        rb = np.flatnonzero(hasb)
-        kb = hit.argmax(axis=1)[hasb]
-        c1 = clear[rb, kb]
-        cprev = np.where(kb > 0, clear[rb, np.maximum(kb - 1, 0)], rules.headlight_height_m)
-        dprev = np.where(kb > 0, d[np.maximum(kb - 1, 0)], 0.0)
-        beam[rows[rb]] = dprev + np.clip(cprev / (cprev - c1), 0.0, 1.0) * h
-        beam_k[rows[rb]] = kb
+        _headlight(Z, d, first_gap, z0, g0, h, rules, rows, beam, beam_k)
     return los, beam, los_k, beam_k, avail
 
 
@@ -153,8 +189,33 @@ def _govern(los, beam, los_k, beam_k, avail, lookahead):
 
 def sight_from(eyes_m: np.ndarray, profile, grade, rules: SightRules, direction: int,
                fine_step_m: float = 1.0) -> dict[str, np.ndarray]:
-    """Sight distance from eyes at arbitrary chainages ``eyes_m`` in one direction (+1 with
-    the chainage, -1 against it), the road ahead sampled every ``fine_step_m`` metres."""
+    """Sight distance from eyes at arbitrary chainages, in one direction.
+
+    Parameters
+    ----------
+    eyes_m : array_like
+        Chainages of the eyes (m).
+    profile : callable
+        ``profile(x)``: road elevation (m) at chainages ``x`` (m), NaN where none.
+    grade : callable
+        ``grade(x)``: road grade (fraction) at chainages ``x``.
+    rules : SightRules
+        Heights (m), beam angle (degrees) and look-ahead (m).
+    direction : int
+        +1 with the chainage, -1 against it.
+    fine_step_m : float, default 1.0
+        Spacing of the road samples ahead (m).
+
+    Returns
+    -------
+    dict of ndarray
+        ``sight_m`` (m, NaN where the eye has no profile), ``limit`` (codes, see
+        ``LIMIT_NAMES``) and ``limit_at_m`` (chainage of the blocking or hit point, m).
+
+    Notes
+    -----
+    As :func:`sight_both_ways`, for one direction and any eye positions.
+    """
     eyes = np.asarray(eyes_m, dtype=float)
     W = max(int(np.ceil(rules.lookahead_m / fine_step_m)), 1)
     d = np.arange(1, W + 1) * fine_step_m
@@ -170,26 +231,10 @@ def sight_from(eyes_m: np.ndarray, profile, grade, rules: SightRules, direction:
             "limit_at_m": at}
 
 
-def sight_both_ways(chainage_m: np.ndarray, profile, rules: SightRules, fine_step_m: float = 1.0,
-                    curves=None, grade=None, chunk: int = 2048, headlight: bool = True) -> dict[str, np.ndarray]:
-    """Available sight distance at every station, both directions.
-
-    ``profile(x)`` gives the road elevation (m) at chainages ``x`` (NaN where there is
-    none) and ``grade(x)`` its grade (fraction; numerical derivative if not given, which is
-    slightly off right at a PVC or PVT); ``curves`` (optional) is a table with
-    ``curve_no, kind, pvc_m, pvt_m`` used to attribute each station's limit to a curve. Given
-    the curves of the profile, the line of sight is checked only where a crest lies within
-    the look-ahead and the headlight only where a sag does: on a fitted alignment nothing else
-    can limit them; ``headlight=False`` checks the line of sight only. Stations must be evenly
-    spaced.
-
-    Returns arrays per station: ``sight_fwd_m, sight_back_m`` (the governing distance),
-    ``los_fwd_m, los_back_m, beam_fwd_m, beam_back_m`` (inf where not limiting),
-    ``limit_fwd, limit_back`` (codes, see ``LIMIT_NAMES``), ``curve_fwd, curve_back``
-    (curve number or 0) and ``limit_at_fwd_m, limit_at_back_m`` (chainage of the
-    blocking or hit point, NaN if none).
-    """
-    ch = np.asarray(chainage_m, dtype=float)
+def _fine_profile(ch: np.ndarray, profile, grade, fine_step_m: float):
+    """The profile sampled every ``h`` (a whole fraction of the station step, about
+    ``fine_step_m``): returns ``(z, h, eye, g)`` with ``z`` the fine samples (m), ``eye`` the
+    fine index of each station and ``g`` each station's grade (fraction)."""
     if len(ch) < 2:
         raise ValueError("sight distance needs at least two stations")
     step = ch[1] - ch[0]
@@ -201,121 +246,102 @@ def sight_both_ways(chainage_m: np.ndarray, profile, rules: SightRules, fine_ste
     z = np.asarray(profile(fine), dtype=float)
     eye = np.arange(len(ch)) * m
     g = np.asarray(grade(ch), dtype=float) if grade is not None else np.gradient(z, h)[eye]
-    W = max(int(np.ceil(rules.lookahead_m / h)), 1)
-    j = np.arange(1, W + 1)
+    return z, h, eye, g
+
+
+def _one_direction(ch, z, h, eye, g, rules: SightRules, curves, sign: int, chunk: int, headlight: bool):
+    """:func:`_ahead` over every station in one direction (``sign`` +1 with the chainage, -1
+    against it), in chunks of ``chunk`` stations; returns ``(los, beam, los_k, beam_k, avail)``."""
+    n = len(ch)
+    j = np.arange(1, max(int(np.ceil(rules.lookahead_m / h)), 1) + 1)
+    zz = z if sign > 0 else z[::-1]
+    e = eye if sign > 0 else (len(z) - 1 - eye)
+    los, beam, avail = np.empty(n), np.empty(n), np.empty(n)
+    los_k = np.empty(n, dtype=np.int64)
+    beam_k = np.empty(n, dtype=np.int64)
+    want_los = _curves_ahead(ch, curves, "crest", rules.lookahead_m, sign)
+    want_beam = (_curves_ahead(ch, curves, "sag", rules.lookahead_m, sign) if headlight
+                 else np.zeros(n, dtype=bool))
+    for c0 in range(0, n, chunk):
+        ei = e[c0:c0 + chunk]
+        idx = ei[:, None] + j[None, :]
+        Z = np.where(idx < len(zz), zz[np.minimum(idx, len(zz) - 1)], np.nan)
+        sl = slice(c0, c0 + chunk)
+        los[sl], beam[sl], los_k[sl], beam_k[sl], avail[sl] = _ahead(
+            Z, zz[ei], sign * g[sl], h, rules, None if want_los is None else want_los[sl],
+            None if want_beam is None else want_beam[sl])
+    return los, beam, los_k, beam_k, avail
+
+
+def sight_both_ways(chainage_m: np.ndarray, profile, rules: SightRules, fine_step_m: float = 1.0,
+                    curves=None, grade=None, chunk: int = 2048, headlight: bool = True) -> dict[str, np.ndarray]:
+    """Available sight distance at every station, both directions of travel.
+
+    Parameters
+    ----------
+    chainage_m : ndarray
+        Evenly spaced station chainages (m).
+    profile : callable
+        ``profile(x)`` gives the road elevation (m) at chainages ``x`` (m); NaN where there is
+        none.
+    rules : SightRules
+        Eye, object and headlight heights (m), beam angle (degrees) and look-ahead (m).
+    fine_step_m : float, default 1.0
+        Spacing of the road samples the sight lines are checked against (m); rounded so that
+        a whole number of them fits in a station step.
+    curves : DataFrame, optional
+        ``curve_no, kind, pvc_m, pvt_m`` (m) of the profile's vertical curves. Given, the line
+        of sight is checked only where a crest lies within the look-ahead and the headlight
+        only where a sag does (on a fitted alignment nothing else can limit them), and each
+        station's limit is attributed to a curve (:func:`attribute`).
+    grade : callable, optional
+        ``grade(x)``, the road's grade (fraction) at chainages ``x`` (m); if not given, the
+        numerical derivative of the fine profile, slightly off right at a PVC or PVT.
+    chunk : int, default 2048
+        Stations computed at once (bounds the memory of the stations x look-ahead arrays).
+    headlight : bool, default True
+        ``False`` checks the line of sight only.
+
+    Returns
+    -------
+    dict of ndarray
+        Per station, for ``dir`` in ``fwd`` and ``back``: ``sight_{dir}_m`` (the governing
+        distance, m), ``los_{dir}_m`` and ``beam_{dir}_m`` (m, inf where not limiting),
+        ``limit_{dir}`` (codes, see ``LIMIT_NAMES``), ``curve_{dir}`` (curve number or 0) and
+        ``limit_at_{dir}_m`` (chainage of the blocking or hit point, m; NaN if none). NaN
+        distances where the profile is missing at the station.
+
+    Notes
+    -----
+    Line of sight: the object (height h2) at distance d is in view while
+    ``(z(d) + h2 - z0 - h1) / d >= max over d' < d of (z(d') - z0 - h1) / d'`` (eye height h1).
+    Headlight: the reach is where the road meets the beam's upper edge, rising from
+    ``headlight_height_m`` at the vehicle's grade plus the beam angle. The governing distance is
+    the smaller, else the look-ahead or the end of the profile.
+
+    References
+    ----------
+    AASHTO, *A Policy on Geometric Design of Highways and Streets* (Green Book), 7th ed., 2018,
+    ch. 3.
+    """
+    ch = np.asarray(chainage_m, dtype=float)
+    z, h, eye, g = _fine_profile(ch, profile, grade, fine_step_m)
     out: dict[str, np.ndarray] = {}
     for name, sign in (("fwd", 1), ("back", -1)):
-        zz = z if sign > 0 else z[::-1]
-        e = eye if sign > 0 else (len(fine) - 1 - eye)
-        los, beam, avail = np.empty(len(ch)), np.empty(len(ch)), np.empty(len(ch))
-        los_k = np.empty(len(ch), dtype=np.int64)
-        beam_k = np.empty(len(ch), dtype=np.int64)
-        want_los = _curves_ahead(ch, curves, "crest", rules.lookahead_m, sign)
-        want_beam = (_curves_ahead(ch, curves, "sag", rules.lookahead_m, sign) if headlight
-                     else np.zeros(len(ch), dtype=bool))
-        for c0 in range(0, len(ch), chunk):
-            ei = e[c0:c0 + chunk]
-            idx = ei[:, None] + j[None, :]
-            Z = np.where(idx < len(zz), zz[np.minimum(idx, len(zz) - 1)], np.nan)
-            sl = slice(c0, c0 + chunk)
-            los[sl], beam[sl], los_k[sl], beam_k[sl], avail[sl] = _ahead(
-                Z, zz[ei], sign * g[sl], h, rules, None if want_los is None else want_los[sl],
-                None if want_beam is None else want_beam[sl])
-        sd, lim, at_k = _govern(los, beam, los_k, beam_k, avail, rules.lookahead_m)
-        at_ch = np.where(at_k >= 0, ch + sign * (at_k + 1) * h, np.nan)
-        nan_eye = np.isnan(z[eye])
-        out[f"sight_{name}_m"] = np.where(nan_eye, np.nan, sd)
-        out[f"los_{name}_m"] = np.where(nan_eye, np.nan, los)
-        out[f"beam_{name}_m"] = np.where(nan_eye, np.nan, beam)
-        out[f"limit_{name}"] = np.where(nan_eye, END, lim).astype(np.int8)
-        out[f"limit_at_{name}_m"] = at_ch
-        out[f"curve_{name}"] = attribute(ch, at_ch, lim, curves, forward=(sign > 0), tol_m=max(1.0, 2 * h))
+        found = _one_direction(ch, z, h, eye, g, rules, curves, sign, chunk, headlight)
+        out |= _direction_columns(name, sign, ch, h, np.isnan(z[eye]), found, rules, curves)
     return out
 
 
-def attribute(eye_ch: np.ndarray, at_ch: np.ndarray, limit: np.ndarray, curves, forward: bool,
-              tol_m: float = 1.0) -> np.ndarray:
-    """Curve number limiting each station's sight (0 = none).
-
-    Line of sight: the crest whose PVC-PVT span holds the blocking point (within
-    ``tol_m``, at least the sight check's step: an angle point's curve is shorter than the
-    step and its blocking point falls a step to either side). Headlight: the sag nearest behind the hit point, in the direction of
-    travel, that is not wholly behind the eye (the beam of an S > L sag meets
-    the road on the tangent beyond the PVT).
-    """
-    res = np.zeros(len(eye_ch), dtype=np.int64)
-    if curves is None or len(curves) == 0:
-        return res
-    tol = tol_m
-    for kind, code in (("crest", LOS), ("sag", BEAM)):
-        c = curves[curves["kind"] == kind].sort_values("pvc_m")
-        if not len(c):
-            continue
-        pvc, pvt, no = c["pvc_m"].to_numpy(), c["pvt_m"].to_numpy(), c["curve_no"].to_numpy()
-        sel = (limit == code) & np.isfinite(at_ch)
-        p, e = at_ch[sel], eye_ch[sel]
-        if kind == "crest":
-            i = np.clip(np.searchsorted(pvc - tol, p, side="right") - 1, 0, len(c) - 1)
-            ok = (p >= pvc[i] - tol) & (p <= pvt[i] + tol)
-        elif forward:
-            i = np.clip(np.searchsorted(pvc, p + tol, side="right") - 1, 0, len(c) - 1)
-            ok = (pvc[i] <= p + tol) & (pvt[i] >= e - tol)
-        else:
-            i = np.clip(np.searchsorted(pvt, p - tol, side="left"), 0, len(c) - 1)
-            ok = (pvt[i] >= p - tol) & (pvc[i] <= e + tol)
-        res[np.flatnonzero(sel)[ok]] = no[i[ok]]
-    return res
-
-
-# ------------------------------------------------------------- closed forms
-def crest_sight_formula(a_pct, length_m, eye_height_m=1.08, object_height_m=0.60):
-    """Sight distance (m) over a crest curve of length L (m) and A (%), AASHTO Green Book
-    ch. 3: S < L: L = A S^2 / (200 (sqrt h1 + sqrt h2)^2); S > L: L = 2 S - 200 (sqrt h1 +
-    sqrt h2)^2 / A. The case is chosen by comparing the result with L."""
-    a = np.asarray(a_pct, dtype=float)
-    L = np.asarray(length_m, dtype=float)
-    C = 200.0 * (np.sqrt(eye_height_m) + np.sqrt(object_height_m)) ** 2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        s_short = np.sqrt(C * L / a)
-        s_long = (L + C / a) / 2.0
-    return np.where(s_short <= L, s_short, s_long)
-
-
-def sag_sight_formula(a_pct, length_m, headlight_height_m=0.60, beam_angle_deg=1.0):
-    """Headlight sight distance (m) on a sag curve, AASHTO Green Book ch. 3:
-    S < L: L = A S^2 / (200 (h + S tan b)); S > L: L = 2 S - 200 (h + S tan b) / A.
-    Infinite where the beam never meets the road (S > L with 2 A <= 200 tan b)."""
-    a = np.asarray(a_pct, dtype=float)
-    L = np.asarray(length_m, dtype=float)
-    h = headlight_height_m
-    tb = np.tan(np.radians(beam_angle_deg))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        p = 200.0 * tb * L
-        s_short = (p + np.sqrt(p * p + 800.0 * a * h * L)) / (2.0 * a)
-        denom = 2.0 * a - 200.0 * tb
-        s_long = np.where(denom > 0, (L * a + 200.0 * h) / denom, np.inf)
-    return np.where(s_short <= L, s_short, s_long)
-
-
-def crest_length_formula(a_pct, sight_m, eye_height_m=1.08, object_height_m=0.60):
-    """Crest curve length (m) giving sight distance S, AASHTO Green Book ch. 3 (both cases,
-    chosen by comparing the S < L result with S; never negative)."""
-    a = np.asarray(a_pct, dtype=float)
-    S = np.asarray(sight_m, dtype=float)
-    C = 200.0 * (np.sqrt(eye_height_m) + np.sqrt(object_height_m)) ** 2
-    L_short = a * S**2 / C
-    with np.errstate(divide="ignore"):
-        L_long = np.maximum(2 * S - C / a, 0.0)
-    return np.where(L_short >= S, L_short, L_long)
-
-
-def sag_length_formula(a_pct, sight_m, headlight_height_m=0.60, beam_angle_deg=1.0):
-    """Sag curve length (m) giving headlight sight distance S, AASHTO Green Book ch. 3
-    (both cases, chosen by comparing the S < L result with S; never negative)."""
-    a = np.asarray(a_pct, dtype=float)
-    S = np.asarray(sight_m, dtype=float)
-    q = 200.0 * (headlight_height_m + S * np.tan(np.radians(beam_angle_deg)))
-    L_short = a * S**2 / q
-    with np.errstate(divide="ignore"):
-        L_long = np.maximum(2 * S - q / a, 0.0)
-    return np.where(L_short >= S, L_short, L_long)
+def _direction_columns(name: str, sign: int, ch, h: float, nan_eye, found, rules: SightRules, curves) -> dict:
+    """The result columns of one direction (see :func:`sight_both_ways`) from what
+    :func:`_one_direction` ``found``."""
+    los, beam, los_k, beam_k, avail = found
+    sd, lim, at_k = _govern(los, beam, los_k, beam_k, avail, rules.lookahead_m)
+    at_ch = np.where(at_k >= 0, ch + sign * (at_k + 1) * h, np.nan)
+    return {f"sight_{name}_m": np.where(nan_eye, np.nan, sd),
+            f"los_{name}_m": np.where(nan_eye, np.nan, los),
+            f"beam_{name}_m": np.where(nan_eye, np.nan, beam),
+            f"limit_{name}": np.where(nan_eye, END, lim).astype(np.int8),
+            f"limit_at_{name}_m": at_ch,
+            f"curve_{name}": attribute(ch, at_ch, lim, curves, forward=(sign > 0), tol_m=max(1.0, 2 * h))}

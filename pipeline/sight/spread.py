@@ -27,17 +27,28 @@ def sight_sd(kind, a_pct, length_m, a_sd_pct, length_sd_m, corr_al, rules: Sight
     kind : array of str
         'crest' or 'sag'.
     a_pct, length_m, a_sd_pct, length_sd_m, corr_al : array
-        Each curve's A (%), L (m), their standard deviations and correlation.
+        Each curve's A (%), L (m), their standard deviations (%, m) and correlation.
     rules : SightRules
-        Eye, object and headlight heights, beam angle and look-ahead.
+        Eye, object and headlight heights (m), beam angle (degrees) and look-ahead (m).
     extra_sd_m : float
         Added in quadrature: the discretisation of the sight check (m).
 
     Returns
     -------
     ndarray
-        sd of min(S, look-ahead) (m), with S from :func:`pipeline.sight.crest_sight_formula`
-        or :func:`pipeline.sight.sag_sight_formula`; derivatives by central differences.
+        sd of min(S, look-ahead) (m), with S from
+        :func:`~pipeline.sight.closed_form.crest_sight_formula` or
+        :func:`~pipeline.sight.closed_form.sag_sight_formula`; derivatives by central
+        differences.
+
+    Notes
+    -----
+    Delta method: ``var S = (dS/dA sA)^2 + (dS/dL sL)^2 + 2 dS/dA dS/dL r sA sL + extra^2``;
+    an unknown sd counts as 10^6 (no information).
+
+    References
+    ----------
+    JCGM 100:2008, *Guide to the expression of uncertainty in measurement*, sec. 5.1.
     """
     kind = np.asarray(kind)
     a = np.asarray(a_pct, dtype=float)
