@@ -20,19 +20,8 @@ rules, inventory), ``outputs`` (tables, workbook, GeoPackage, report), and ``run
 network: chunks, engines, work folder); ``core`` holds settings, units and errors.
 """
 
-__version__ = "0.1.0"
+from .api import AuditResult, audit, validate
+from .core.config import Settings
+from .core.version import __version__
 
 __all__ = ["audit", "validate", "AuditResult", "Settings", "__version__"]
-
-
-def __getattr__(name):
-    # the public names load on first use, so that `import pipeline` (and the command's start) stays light
-    if name in ("audit", "validate", "AuditResult"):
-        from . import api
-
-        return getattr(api, name)
-    if name == "Settings":
-        from .core.config import Settings
-
-        return Settings
-    raise AttributeError(f"module 'pipeline' has no attribute {name!r}")

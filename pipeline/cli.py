@@ -13,7 +13,7 @@ import sys
 import time
 from pathlib import Path
 
-from . import __version__
+from .core.version import __version__
 from .core.errors import InputError
 
 DESCRIPTION = (

@@ -11,7 +11,7 @@ import pytest
 from pipeline.evaluate.criteria import get_set
 from pipeline.evaluate.formulas import register_formulas
 from pipeline.core.errors import InputError
-from pipeline.sight.lines import crest_length_formula, sag_length_formula
+from pipeline.sight.closed_form import crest_length_formula, sag_length_formula
 from pipeline.core.sqlrun import sql_text
 
 METRIC = get_set("aashto-2018-metric")

@@ -113,3 +113,19 @@ def test_workbook_reads_back(demo_out):
     assert "licensed engineer" in method and "AASHTO" in method
     summary = " ".join(str(c.value) for row in wb["Summary"].iter_rows() for c in row if c.value)
     assert "licensed engineer" in summary
+
+
+def test_readme_column_lists_come_from_the_registry(demo_out):
+    """The README's column lists are those of pipeline/core/tables.py, and every output file has
+    exactly the registry's columns in its order (the registry is the one place they are set)."""
+    from pathlib import Path
+
+    from pipeline.core import tables
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    section = readme.split("<!-- output columns -->")[1]
+    assert section.strip() == tables.readme_columns().strip()
+    for name, file in tables.OUTPUT_FILES.items():
+        path = demo_out / file
+        cols = list(pd.read_parquet(path).columns) if file.endswith(".parquet") else list(pd.read_csv(path).columns)
+        assert cols == tables.column_names(name), file

@@ -8,8 +8,9 @@ import pandas as pd
 import pytest
 
 from pipeline.alignment.fit import model_grade, model_z
-from pipeline.sight.lines import (BEAM, END, LOOKAHEAD, LOS, SightRules, attribute, crest_sight_formula,
-                            sag_sight_formula, sight_both_ways, sight_from)
+from pipeline.sight.attribution import BEAM, END, LOOKAHEAD, LOS, attribute
+from pipeline.sight.closed_form import crest_sight_formula, sag_sight_formula
+from pipeline.sight.lines import SightRules, sight_both_ways, sight_from
 
 RULES = SightRules(eye_height_m=1.08, object_height_m=0.60, headlight_height_m=0.60, beam_angle_deg=1.0,
                    lookahead_m=800.0)

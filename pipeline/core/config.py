@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import InputError
-from .spec import CHECKS, SPEC, section_defaults  # noqa: F401  (re-exported: the table lives in spec)
+from .spec import SPEC
 from .validate import check_value, coerce_value, nearest_key
 
 

@@ -17,6 +17,11 @@ from .method import CAUTION_TEXT
 from .tables import column_note
 
 
+# the table of pipeline.core.tables each data sheet holds (its header notes come from there)
+SHEET_TABLES = {"Deficiencies": "deficiencies", "Curves": "curves", "Horizontal curves": "horizontal_curves",
+                "Roads": "roads", "Data notes": "data_notes"}
+
+
 def data_quality_lines(dq: dict | None, units) -> list[tuple[str, str]]:
     """The data-quality statement as workbook summary lines.
 
@@ -168,7 +173,7 @@ def _table_sheet(wb, fmt: dict, name: str, frame: pd.DataFrame, units, notes: di
     sh = wb.add_worksheet(name)
     for j, col in enumerate(frame.columns):
         sh.write(0, j, col, fmt["head"])
-        note = (notes or {}).get(col) or column_note(col, units)
+        note = (notes or {}).get(col) or column_note(col, units, SHEET_TABLES.get(name))
         if note:
             sh.write_comment(0, j, note, {"x_scale": 2})
         values = frame[col]

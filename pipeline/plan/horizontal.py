@@ -41,7 +41,7 @@ import numpy as np
 import pandas as pd
 from scipy.signal import savgol_coeffs, savgol_filter
 
-from ..core.config import section_defaults
+from ..core.spec import section_defaults
 from ..core.estimators import mad_sigma
 from ..profile.stations import Polyline, run_lengths
 

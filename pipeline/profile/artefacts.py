@@ -33,7 +33,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..core.config import section_defaults
+from ..core.spec import section_defaults
 from ..core.estimators import second_difference_sd
 from .stations import run_lengths
 

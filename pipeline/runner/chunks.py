@@ -1,8 +1,8 @@
 """Chunks of roads, and the fixed layouts of the tables each chunk writes.
 
 The network is cut into chunks of consecutive roads (``run.chunk_km`` of road each). Every
-chunk writes the same tables (:data:`TABLES`), each with a fixed schema even when empty, so
-that every chunk file reads alike.
+chunk writes the same tables (:data:`TABLES`), each with the fixed schema of its ``work.*``
+table in :mod:`pipeline.core.tables` even when empty, so that every chunk file reads alike.
 """
 
 from __future__ import annotations
@@ -10,9 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ..alignment.fit import empty_curves
-from ..plan.horizontal import HCURVE_COLUMNS
-from .roadwork import HAZARD_COLUMNS, HCURVE_CHECK_COLUMNS, UNCERTAINTY_COLUMNS
+from ..core.tables import empty_frame
 
 TABLES = ("profiles", "curves", "keypoints", "hazards", "hcurves", "notes", "status")
 
@@ -69,67 +67,6 @@ def typed_table(name: str, frame: pd.DataFrame | None) -> pd.DataFrame:
     """
     if frame is not None and len(frame):
         return frame
-    return _EMPTY[name]()
+    return empty_frame("work." + name)
 
 
-def empty_profiles() -> pd.DataFrame:
-    """An empty station table (``profiles``) with its columns and types.
-
-    Returns
-    -------
-    pandas.DataFrame
-        No rows; one column per station attribute.
-    """
-    return pd.DataFrame({
-        "road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float), "x": pd.Series(dtype=float),
-        "y": pd.Series(dtype=float), "ground_z_m": pd.Series(dtype=float), "ground_flag": pd.Series(dtype=str),
-        "ground_offset_m": pd.Series(dtype=float), "filter_m": pd.Series(dtype=float),
-        "fitted_z_m": pd.Series(dtype=float), "grade_pct": pd.Series(dtype=float),
-        "sight_fwd_m": pd.Series(dtype=float), "sight_back_m": pd.Series(dtype=float),
-        "limit_fwd": pd.Series(dtype=str), "limit_back": pd.Series(dtype=str),
-        "curve_fwd": pd.Series(dtype="int64"), "curve_back": pd.Series(dtype="int64"),
-        "speed_fwd_kmh": pd.Series(dtype=float), "speed_back_kmh": pd.Series(dtype=float),
-    })
-
-
-def _empty_curves() -> pd.DataFrame:
-    e = empty_curves()
-    e.insert(0, "road_id", pd.Series(dtype=str))
-    for col in UNCERTAINTY_COLUMNS + ["sight_sd_m", "sight_formula_m"]:
-        e[col] = pd.Series(dtype=float)
-    return e
-
-
-def _empty_keypoints() -> pd.DataFrame:
-    return pd.DataFrame({"road_id": pd.Series(dtype=str), "chainage_m": pd.Series(dtype=float),
-                         "direction": pd.Series(dtype=str), "sight_m": pd.Series(dtype=float),
-                         "limit_kind": pd.Series(dtype=str), "curve_no": pd.Series(dtype="int64"),
-                         "grade": pd.Series(dtype=float), "speed_kmh": pd.Series(dtype=float)})
-
-
-def _empty_hazards() -> pd.DataFrame:
-    return pd.DataFrame({c: pd.Series(dtype="int64" if c == "curve_no" else
-                                      (float if c.endswith("_m") else str)) for c in HAZARD_COLUMNS})
-
-
-def _empty_hcurves() -> pd.DataFrame:
-    cols = ["road_id"] + HCURVE_COLUMNS + HCURVE_CHECK_COLUMNS
-    kinds = {"road_id": str, "direction": str, "hcurve_no": "int64", "below_min_radius": bool,
-             "hso_valid": bool}
-    return pd.DataFrame({c: pd.Series(dtype=kinds.get(c, float)) for c in cols})
-
-
-def _empty_notes() -> pd.DataFrame:
-    return pd.DataFrame({"road_id": pd.Series(dtype=str), "note": pd.Series(dtype=str),
-                         "from_m": pd.Series(dtype=float), "to_m": pd.Series(dtype=float),
-                         "detail": pd.Series(dtype=str)})
-
-
-def _empty_status() -> pd.DataFrame:
-    return pd.DataFrame({"road_id": pd.Series(dtype=str), "status": pd.Series(dtype=str),
-                         "reason": pd.Series(dtype=str), "ground_spacing_m": pd.Series(dtype=float),
-                         "resolution_m": pd.Series(dtype=float)})
-
-
-_EMPTY = {"profiles": empty_profiles, "curves": _empty_curves, "keypoints": _empty_keypoints,
-          "hazards": _empty_hazards, "hcurves": _empty_hcurves, "notes": _empty_notes, "status": _empty_status}

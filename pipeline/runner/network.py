@@ -31,7 +31,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .. import __version__
+from ..core.version import __version__
 from ..core.config import Config
 from ..core.units import OutputUnits
 from ..evaluate.criteria import get_set

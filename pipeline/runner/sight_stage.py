@@ -12,8 +12,9 @@ import pandas as pd
 from ..alignment.fit import RoadProfile
 from ..core.config import Config
 from ..sight.hazards import hazards_in_zone, hidden_zone
-from ..sight.lines import (LIMIT_NAMES, attribute, crest_sight_formula, sag_sight_formula, sight_both_ways,
-                           sight_from)
+from ..sight.attribution import LIMIT_NAMES, attribute
+from ..sight.closed_form import crest_sight_formula, sag_sight_formula
+from ..sight.lines import sight_both_ways, sight_from
 from ..sight.spread import sight_sd
 
 HAZARD_COLUMNS = ["road_id", "curve_no", "direction", "hidden_from_m", "hidden_to_m", "hidden_hazard",

@@ -14,7 +14,7 @@ import os
 import shutil
 from pathlib import Path
 
-from .. import __version__
+from ..core.version import __version__
 from ..core.config import Config
 from ..ingest.readers import file_sha256
 from .chunks import TABLES, typed_table

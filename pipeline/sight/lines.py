@@ -33,9 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .attribution import BEAM, END, LIMIT_NAMES, LOOKAHEAD, LOS, attribute  # noqa: F401  (re-exported)
-from .closed_form import (crest_length_formula, crest_sight_formula, sag_length_formula,  # noqa: F401
-                          sag_sight_formula)  # re-exported: the closed forms live in closed_form
+from .attribution import BEAM, END, LOOKAHEAD, LOS, attribute
 
 
 @dataclass(frozen=True)

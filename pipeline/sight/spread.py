@@ -15,7 +15,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .lines import SightRules, crest_sight_formula, sag_sight_formula
+from .closed_form import crest_sight_formula, sag_sight_formula
+from .lines import SightRules
 
 
 def sight_sd(kind, a_pct, length_m, a_sd_pct, length_sd_m, corr_al, rules: SightRules,

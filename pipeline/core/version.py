@@ -1,0 +1,3 @@
+"""The package version (read by the build from this file)."""
+
+__version__ = "0.1.0"
