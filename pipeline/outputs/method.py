@@ -120,3 +120,46 @@ def method_lines(result, cfg) -> list[tuple[str, str]]:
                      f"over {bands[1]:g} severe"),
         ("Priority score", f"{priority_formula(cfg)}; {priority_terms(cfg)}"),
     ]
+
+
+def data_quality_facts(dq: dict | None, units) -> list[tuple[str, str]]:
+    """What the ground data can support, as (label, text) pairs in the run's units, for the
+    report and the workbook alike.
+
+    Parameters
+    ----------
+    dq : dict or None
+        The run's data-quality statement (:func:`pipeline.evaluate.quality.data_quality`).
+    units : OutputUnits
+        The run's output units.
+
+    Returns
+    -------
+    list of (str, str)
+        Ground spacing, shortest feature resolved, vertical error (stated or assumed), scatter
+        about the fit, share of curves and of road length judged with high confidence; empty
+        without a statement. The sentences on what the data cannot judge are ``dq["cannot_judge"]``.
+    """
+    if not dq:
+        return []
+    L, E = units.length, units.length_label
+
+    def known(value, text):
+        return text if value is not None else None
+
+    kind = "DEM cell" if dq["ground_kind"] == "dem" else "ground-point spacing"
+    facts = [
+        (kind, known(dq["spacing_m"], lambda: f"{L(dq['spacing_m']):.1f} {E}"), "unknown"),
+        ("shortest feature resolved", known(dq["resolution_m"], lambda: f"{L(dq['resolution_m']):.0f} {E}"),
+         "unknown"),
+        ("vertical error of the ground data", known(dq.get("vertical_error_m"), lambda:
+         f"{L(dq['vertical_error_m']):.2f} {E}, {dq['vertical_error_basis']}"), "not stated"),
+        ("estimated ground error about the fit", known(dq["noise_sd_m"], lambda:
+         f"{L(dq['noise_sd_m']):.2f} {E} (correlation from station to station {dq['noise_rho']:.2f})"), "no curves"),
+        ("curves judged with high confidence", known(dq["curves_high_pct"], lambda:
+         f"{dq['curves_high_pct']:.0f} % of {dq['curves']}; undetermined {dq['curves_undetermined_pct']:.0f} %"),
+         "no curves"),
+        ("road length all of whose curves are judged with high confidence", known(dq["km_high_pct"], lambda:
+         f"{dq['km_high_pct']:.0f} %"), "none evaluated"),
+    ]
+    return [(label, text() if text else missing) for label, text, missing in facts]

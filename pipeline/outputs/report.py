@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from .fieldsheets import write_profiles_pdf
+from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, network_map, png_data_uri, road_figure
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS
 
@@ -130,20 +131,7 @@ def data_quality_html(dq: dict | None, units) -> str:
     """
     if not dq:
         return ""
-    L, E = units.length, units.length_label
-    kind = "DEM cell" if dq["ground_kind"] == "dem" else "ground-point spacing"
-    facts = [
-        (kind, "unknown" if dq["spacing_m"] is None else f"{L(dq['spacing_m']):.1f} {E}"),
-        ("shortest feature resolved", "unknown" if dq["resolution_m"] is None else f"{L(dq['resolution_m']):.0f} {E}"),
-        ("vertical error of the ground data", "not stated" if dq.get("vertical_error_m") is None else
-         f"{L(dq['vertical_error_m']):.2f} {E}, {dq['vertical_error_basis']}"),
-        ("estimated ground error about the fit", "no curves" if dq["noise_sd_m"] is None else
-         f"{L(dq['noise_sd_m']):.2f} {E} (correlation from station to station {dq['noise_rho']:.2f})"),
-        ("curves judged with high confidence", "no curves" if dq["curves_high_pct"] is None else
-         f"{dq['curves_high_pct']:.0f} % of {dq['curves']}; undetermined {dq['curves_undetermined_pct']:.0f} %"),
-        ("road length all of whose curves are judged with high confidence",
-         "none evaluated" if dq["km_high_pct"] is None else f"{dq['km_high_pct']:.0f} %"),
-    ]
+    facts = data_quality_facts(dq, units)
     words = "".join(f"<li>{_e(t)}</li>" for t in dq["cannot_judge"])
     return (f"<h3 id='data-quality'>What this ground data can support</h3><table class='facts'>{_facts(facts)}"
             f"</table><ul>{words}</ul>")

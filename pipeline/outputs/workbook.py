@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .method import CAUTION_TEXT
+from .method import CAUTION_TEXT, data_quality_facts
 from .tables import column_note
 
 
@@ -41,20 +41,7 @@ def data_quality_lines(dq: dict | None, units) -> list[tuple[str, str]]:
     """
     if not dq:
         return []
-    L, E = units.length, units.length_label
-    kind = "DEM cell" if dq["ground_kind"] == "dem" else "ground-point spacing"
-    spacing = "unknown" if dq["spacing_m"] is None else f"{L(dq['spacing_m']):.1f} {E}"
-    res = "unknown" if dq["resolution_m"] is None else f"{L(dq['resolution_m']):.0f} {E}"
-    lines = [
-        ("Ground data", f"{kind} {spacing}; shortest feature resolved {res}"),
-        ("Vertical error of the ground", "not stated" if dq.get("vertical_error_m") is None else
-         f"{L(dq['vertical_error_m']):.2f} {E}, {dq['vertical_error_basis']}"),
-        ("Estimated ground error", "no curves" if dq["noise_sd_m"] is None else
-         f"{L(dq['noise_sd_m']):.2f} {E} about the fit (station-to-station correlation {dq['noise_rho']:.2f})"),
-        ("Judged with high confidence", "no curves" if dq["curves_high_pct"] is None else
-         f"{dq['curves_high_pct']:.0f} % of curves; {dq['km_high_pct'] or 0:.0f} % of the road length has "
-         f"every curve judged with high confidence"),
-    ]
+    lines = [(label[0].upper() + label[1:], text) for label, text in data_quality_facts(dq, units)]
     lines += [("What this data cannot judge", t) for t in dq["cannot_judge"]]
     return lines
 
