@@ -263,39 +263,35 @@ def _grade_change_coefficients(X):
     return inv[..., :-1], -inv[..., :-1] - inv[..., 1:], inv[..., 1:]
 
 
-def _design_dense(X, L, xs):
-    """``H + W C`` as dense arrays, for a window or a batch of windows."""
+def _dense_factors(X, L, xs):
+    """``H``, ``W`` and ``C`` as dense arrays, for a window or a batch of windows."""
     k, t = hat_weights(X, xs)
     H = np.zeros(X.shape[:-1] + (len(xs), X.shape[-1]))
     np.put_along_axis(H, k[..., None], (1 - t)[..., None], axis=-1)
     np.put_along_axis(H, (k + 1)[..., None], t[..., None], axis=-1)
-    C = grade_change_matrix(X)
-    if X.ndim == 1:
-        cv = np.flatnonzero(L > 0)  # columns of W that are not 0
-        if len(cv):
-            H += curve_weights(X[cv], L[cv], xs[:, None]) @ C[cv]
-        return H
-    W = curve_weights(X[:, None, :], L[:, None, :], xs[None, :, None])
-    return H + W @ C
+    W = curve_weights(X[..., None, :], L[..., None, :], xs[:, None])
+    return H, W, grade_change_matrix(X)
 
 
-def _design_sparse(X, L, xs):
-    """``H + W C`` as a CSR matrix: each station touches at most four vertices."""
+def _sparse_factors(X, L, xs):
+    """``H``, ``W`` and ``C`` as CSR matrices, for a whole stretch: each station lies on one
+    tangent and under at most one curve, and each grade change involves three vertices."""
     nv, n = len(X), len(xs)
     k, t = hat_weights(X, xs)
-    coef = np.column_stack(_grade_change_coefficients(X))  # row i - 1: columns i - 1, i, i + 1
     r = np.arange(n)
-    rows, cols, vals = [r, r], [k, k + 1], [1 - t, t]
+    H = sp.csr_matrix((np.concatenate([1 - t, t]), (np.concatenate([r, r]), np.concatenate([k, k + 1]))),
+                      shape=(n, nv))
+    rows, cols, vals = [np.zeros(0, dtype=int)], [np.zeros(0, dtype=int)], [np.zeros(0)]
     for i in np.flatnonzero(L[1:-1] > 0) + 1:
         lo, hi = np.searchsorted(xs, [X[i] - L[i] / 2, X[i] + L[i] / 2])
-        if hi <= lo:
-            continue
-        w = curve_weights(X[i], L[i], xs[lo:hi])
-        for j, c in enumerate((i - 1, i, i + 1)):
-            rows.append(r[lo:hi])
-            cols.append(np.full(hi - lo, c))
-            vals.append(w * coef[i - 1, j])
-    return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(n, nv))
+        rows.append(r[lo:hi])
+        cols.append(np.full(len(rows[-1]), i))
+        vals.append(curve_weights(X[i], L[i], xs[lo:hi]))
+    W = sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(n, nv))
+    i = np.arange(1, nv - 1)
+    C = sp.csr_matrix((np.concatenate(_grade_change_coefficients(X)),
+                       (np.concatenate([i, i, i]), np.concatenate([i - 1, i, i + 1]))), shape=(nv, nv))
+    return H, W, C
 
 
 def design_matrix(X: np.ndarray, L: np.ndarray, xs: np.ndarray, sparse: bool = False):
@@ -326,6 +322,5 @@ def design_matrix(X: np.ndarray, L: np.ndarray, xs: np.ndarray, sparse: bool = F
     :func:`curve_weights`, :func:`grade_change_matrix`).
     """
     xs = np.asarray(xs, dtype=float)
-    if sparse:
-        return _design_sparse(X, L, xs)
-    return _design_dense(X, L, xs)
+    H, W, C = _sparse_factors(X, L, xs) if sparse else _dense_factors(X, L, xs)
+    return H + W @ C
