@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .fit import Alignment, model_z
+from .model import Alignment, model_z
 
 
 def residual_noise(r: np.ndarray) -> tuple[float, float]:
@@ -61,7 +61,26 @@ def residual_noise(r: np.ndarray) -> tuple[float, float]:
 
 
 def ar1_variance_factor(rho: float) -> float:
-    """Variance inflation ``(1 + rho) / (1 - rho)`` for AR(1) errors (Box et al. 2008, ch. 3)."""
+    """Variance inflation of a mean for AR(1) errors.
+
+    Parameters
+    ----------
+    rho : float
+        Lag-1 autocorrelation of the errors (dimensionless), below 1.
+
+    Returns
+    -------
+    float
+        The factor (dimensionless).
+
+    Notes
+    -----
+    factor = (1 + rho) / (1 - rho).
+
+    References
+    ----------
+    Box, Jenkins & Reinsel, *Time Series Analysis*, 4th ed., Wiley 2008, ch. 3.
+    """
     return (1.0 + rho) / (1.0 - rho)
 
 
@@ -81,6 +100,18 @@ def _jacobian(al: Alignment, i: int, xs: np.ndarray) -> np.ndarray:
             zs.append(model_z(X2, Y2, L2, xs))
         cols.append((zs[0] - zs[1]) / (hi_h + lo_h))
     return np.column_stack(cols)
+
+
+def _a_l_covariance(X: np.ndarray, Y: np.ndarray, i: int, cov: np.ndarray) -> np.ndarray:
+    """Covariance of (A in %, L in m) from that of theta = (Y_{i-1}, X_i, Y_i, Y_{i+1}, L_i),
+    by the delta method: D Cov(theta) D^T with D the derivatives of A = |G2 - G1| and L."""
+    d1, d2 = X[i] - X[i - 1], X[i + 1] - X[i]
+    g1, g2 = (Y[i] - Y[i - 1]) / d1, (Y[i + 1] - Y[i]) / d2
+    dg1 = np.array([-1 / d1, -g1 / d1, 1 / d1, 0.0, 0.0])
+    dg2 = np.array([0.0, g2 / d2, -1 / d2, 1 / d2, 0.0])
+    sgn = 1.0 if g2 >= g1 else -1.0
+    D = np.vstack([100.0 * sgn * (dg2 - dg1), [0.0, 0.0, 0.0, 0.0, 1.0]])
+    return D @ cov @ D.T
 
 
 def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.ndarray,
@@ -131,14 +162,7 @@ def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.nda
     piece = Alignment(x=X[a:b].copy(), y=Y[a:b].copy(), L=L[a:b].copy())
     piece.L[0] = piece.L[-1] = 0.0
     J = _jacobian(piece, i - a, x)
-    cov = s2 * np.linalg.pinv(J.T @ J)
-    d1, d2 = X[i] - X[i - 1], X[i + 1] - X[i]
-    g1, g2 = (Y[i] - Y[i - 1]) / d1, (Y[i + 1] - Y[i]) / d2
-    dg1 = np.array([-1 / d1, -g1 / d1, 1 / d1, 0.0, 0.0])
-    dg2 = np.array([0.0, g2 / d2, -1 / d2, 1 / d2, 0.0])
-    sgn = 1.0 if g2 >= g1 else -1.0
-    D = np.vstack([100.0 * sgn * (dg2 - dg1), [0.0, 0.0, 0.0, 0.0, 1.0]])
-    C = D @ cov @ D.T
+    C = _a_l_covariance(X, Y, i, s2 * np.linalg.pinv(J.T @ J))
     C[1, 1] += resolution_m**2 / 12.0
     a_sd, l_sd = float(np.sqrt(max(C[0, 0], 0.0))), float(np.sqrt(max(C[1, 1], 0.0)))
     out.update(a_sd_pct=a_sd, length_sd_m=l_sd,
@@ -147,7 +171,31 @@ def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.nda
 
 
 def k_sd(a_pct, length_m, a_sd_pct, length_sd_m, corr_al):
-    """Standard deviation of K = L / A (m per %) by the delta method (JCGM 100:2008, 5.1)."""
+    """Standard deviation of K = L / A by the delta method.
+
+    Parameters
+    ----------
+    a_pct, a_sd_pct : array_like
+        Grade change A and its standard deviation (%).
+    length_m, length_sd_m : array_like
+        Curve length L and its standard deviation (m).
+    corr_al : array_like
+        Correlation of A and L (dimensionless).
+
+    Returns
+    -------
+    ndarray
+        sd(K) (m per %); NaN or inf where A = 0.
+
+    Notes
+    -----
+    var(K) = (L / A^2)^2 var(A) + var(L) / A^2 - 2 (L / A^3) corr sd(A) sd(L).
+
+    References
+    ----------
+    JCGM 100:2008, *Evaluation of measurement data - Guide to the expression of uncertainty in
+    measurement*, 5.1.
+    """
     a = np.asarray(a_pct, dtype=float)
     L = np.asarray(length_m, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
