@@ -8,13 +8,20 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import os
 import shutil
 import sys
 import time
 from pathlib import Path
 
-from .core.version import __version__
+from .api import audit
+from .core.config import example_toml, load_config
 from .core.errors import InputError
+from .core.resources import sample_paths
+from .core.version import __version__
+from .evaluate.criteria import get_set, load_sets, template
+from .runner.checks import check_inputs
+from .runner.network import Progress, worker_pool
 
 DESCRIPTION = (
     "Screening audit of rural roads for stopping-sight-distance (SSD) shortfalls on crest and "
@@ -147,8 +154,6 @@ class _RichProgress:
 
 
 def _progress(args):
-    from .runner.network import Progress
-
     if args.quiet:
         return Progress()
     if not sys.stderr.isatty():
@@ -199,10 +204,6 @@ def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
 
 
 def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> int:
-    from .api import audit
-    from .core.config import load_config
-    from .runner.network import worker_pool
-
     cfg = load_config(config, overrides)
     out = Path(args.out)
     # chunk results wait beside the output folder until the outputs are complete (for --resume)
@@ -224,8 +225,6 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
 
 
 def _init(args) -> int:
-    from .core.config import example_toml
-
     path = Path(args.path)
     if path.exists() and not args.force:
         raise InputError(f"{path}: exists already; give another name or add --force to replace it")
@@ -236,9 +235,6 @@ def _init(args) -> int:
 
 
 def _validate(args) -> int:
-    from .runner.checks import check_inputs
-    from .core.config import load_config
-
     overrides = {key: getattr(args, key, None) for _, key, _, _, _ in RUN_FLAGS}
     cfg = load_config(args.config, overrides)
     info = check_inputs(args.roads, args.ground, cfg)
@@ -293,9 +289,6 @@ def _validate(args) -> int:
 
 
 def _criteria(args) -> int:
-    from .core.config import load_config
-    from .evaluate.criteria import get_set, load_sets, template
-
     if args.template:
         print(template(), end="")
         return 0
@@ -342,7 +335,6 @@ def main(argv: list[str] | None = None) -> int:
         if args.command == "validate":
             return _validate(args)
         if args.command == "demo":
-            from .core.resources import sample_paths
 
             paths = sample_paths()
             return _run(args, str(paths["roads"]), str(paths["dem"]), {"structures.file": str(paths["structures"]),
@@ -357,7 +349,6 @@ def main(argv: list[str] | None = None) -> int:
         print("sightaudit: interrupted; no output was written", file=sys.stderr)
         return 130
     except BrokenPipeError:  # output piped into a pager or head that stopped reading
-        import os
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0

@@ -145,13 +145,13 @@ def curve_parameter_covariance(al: Alignment, i: int, xs: np.ndarray, zs: np.nda
     X, Y, L = al.x, al.y, al.L
     lo, hi = X[i - 1], X[i + 1]
     on = (xs >= lo) & (xs <= hi) & np.isfinite(zs)
-    x, z = xs[on], zs[on]
+    x = xs[on]
     r_full = np.where((xs >= lo) & (xs <= hi), zs - al.z(xs), np.nan)
     sigma, rho = residual_noise(r_full[(xs >= lo) & (xs <= hi)])
     step = float(np.median(np.diff(xs))) if len(xs) > 1 else 1.0
     spread = max(2.0 * cell_m / step, 1.0) if cell_m else 1.0
     s2 = max(sigma**2 * ar1_variance_factor(rho), sigma_floor_m**2 * spread)
-    sigma = max(sigma, sigma_floor_m)
+    # the scatter reported is the residuals' own; the floor shows in the standard deviations
     out = {"a_sd_pct": np.inf, "length_sd_m": np.inf, "corr_al": 0.0, "noise_sd_m": sigma, "noise_rho": rho,
            "stations": int(on.sum())}
     if len(x) < 6:

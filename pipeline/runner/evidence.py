@@ -28,15 +28,16 @@ import pandas as pd
 
 from ..core.config import Config
 from ..core.errors import InputError
-
-from ..ingest.columns import MAX_SPEED_KMH, _UNIT_WORDS, overridden, speed_unit  # noqa: F401
+from ..core.units import kmh_per_mph, metres_per
+from ..ingest.columns import MAX_SPEED_KMH, _UNIT_WORDS, overridden, speed_unit
+from ..ingest.readers import DemGround, PointGround
+from ..profile.sampler import GroundSampler
+from ..profile.stations import station_chainages
 
 def screen_speeds(table: pd.DataFrame, cfg: Config) -> np.ndarray:
     """Blank impossible speeds in ``table["speed_raw"]`` (not positive, not finite, or above
     200 km/h) so they are substituted, and return what each road's column held, as text
     (``None`` where the value was usable)."""
-    from ..core.units import kmh_per_mph
-
     raw = table["speed_raw"].to_numpy(dtype=float)
     factor = kmh_per_mph() if speed_unit(cfg) == "mph" else 1.0
     with np.errstate(invalid="ignore"):
@@ -55,7 +56,6 @@ def speed_notes(table: pd.DataFrame, found: np.ndarray, cfg: Config) -> pd.DataF
     if cfg["speed.source"] == "predicted":
         return pd.DataFrame(columns=["road_id", "note", "from_m", "to_m", "detail"])
     us = cfg["output.units"] == "us"
-    from ..core.units import kmh_per_mph
 
     def show(kmh):
         return f"{kmh / kmh_per_mph():.1f} mph" if us else f"{kmh:g} km/h"
@@ -112,9 +112,6 @@ def dem_elevation_unit(dem) -> tuple[str | None, str]:
 
 def settle_elevation_unit(ground, cfg: Config, notes: list[str]) -> dict:
     """Use the DEM's own elevation unit; refuse an explicit setting that contradicts it."""
-    from ..ingest.readers import DemGround
-    from ..core.units import metres_per
-
     declared = cfg["ground.elevation_unit"]
     info = {"elevation_unit": declared, "elevation_unit_source": "setting" if "ground.elevation_unit"
             in cfg.explicit else "default"}
@@ -146,9 +143,6 @@ def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: in
     file) and measure coverage and grades: ``coverage_pct``, ``roads_without_ground`` (ids),
     ``grade_pct`` (percentiles 50, 90, 99 of |grade| over ``step_m``), ``steep_pct`` (share of
     length steeper than ``artefacts.max_road_grade_pct``) and ``sampled_km``."""
-    from ..profile.stations import station_chainages
-    from ..profile.sampler import GroundSampler
-
     t = roads.table
     ok = t["geometry"].notna() & t["skip_reason"].isna()
     rows = t[ok]
@@ -185,8 +179,6 @@ def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: in
 
 def likely_cause(roads, ground) -> str:
     """The likeliest reason ground data miss the roads, for the refusal message."""
-    from ..ingest.readers import PointGround
-
     if isinstance(ground, PointGround) and ground.mode == "xy" and ground.rows:
         x, y = ground.arrays["x"], ground.arrays["y"]
         lonlat = np.nanmax(np.abs(x)) <= 180 and np.nanmax(np.abs(y)) <= 90
