@@ -318,6 +318,19 @@ def _criteria(args) -> int:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """The ``sightaudit`` command.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments (``sys.argv[1:]`` by default).
+
+    Returns
+    -------
+    int
+        Exit code: 0 success; 1 an internal error or an extra output not written; 2 an input to
+        fix (one line on standard error says what).
+    """
     args = _parser().parse_args(argv)
     if args.command is None:
         _parser().print_help()

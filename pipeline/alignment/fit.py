@@ -45,19 +45,13 @@ from .model import Alignment, design_matrix, model_grade, model_z
 from .optimisation import _jacobian, levenberg_marquardt, nls_fit, solve_elevations
 from .segmentation import bin_means, initial_vertices, noise_sigma, segment_lines
 from .selection import StretchFitter
+from ..core.spec import section_defaults
 
 __all__ = ["DEFAULTS", "CURVE_COLUMNS", "Alignment", "RoadProfile", "_jacobian", "bin_means", "design_matrix",
            "empty_curves", "fit_profile", "fit_stretch", "levenberg_marquardt", "model_grade", "model_z",
            "nls_fit", "noise_sigma", "segment_lines"]
 
-DEFAULTS = {
-    "min_tangent_m": 20.0,        # shortest straight piece the segmentation may create
-    "min_grade_change_pct": 0.5,  # a PVI with a smaller grade change is not a curve
-    "noise_floor_m": 0.002,       # noise assumed at least this (exact data has none)
-    "split_gap_m": 150.0,         # profiles are fitted separately across longer data gaps
-    "short_tangent_m": 60.0,      # same-kind curves closer than this are flagged broken-back
-    "bin_m": 10.0,                # structure is found on means over bins this long
-}
+DEFAULTS = section_defaults("alignment")  # the [alignment] settings (pipeline/core/spec.py)
 
 
 def _initial_model(xs, zs, step_m: float, sigma: float, opts: dict):
@@ -157,9 +151,21 @@ class RoadProfile:
         self._grid = None
 
     def z_grid(self, x, step_m: float = 1.0):
-        """Elevation (m) at chainages ``x`` (m) by linear interpolation in a table of the
-        alignment every ``step_m`` (m), computed once: for the many look-ups of the hazard
-        stage, where a few millimetres do not matter."""
+        """Elevation by linear interpolation in a table of the alignment, computed once.
+
+        Parameters
+        ----------
+        x : array_like
+            Chainages (m).
+        step_m : float
+            Spacing of the table (m); for the many look-ups of the hazard stage, where a few
+            millimetres do not matter.
+
+        Returns
+        -------
+        ndarray
+            Elevation (m); NaN off the fitted stretches.
+        """
         if self._grid is None:
             g = np.arange(self.starts.min(), self.ends.max() + step_m, step_m)
             self._grid = (g, self.z(g))
@@ -177,11 +183,33 @@ class RoadProfile:
         return res.reshape(x.shape)
 
     def z(self, x):
-        """Elevation (m) at chainages ``x`` (m); NaN off the fitted stretches."""
+        """Elevation of the fitted alignment.
+
+        Parameters
+        ----------
+        x : array_like
+            Chainages (m).
+
+        Returns
+        -------
+        ndarray
+            Elevation (m); NaN off the fitted stretches.
+        """
         return self._each(x, lambda a, v: a.z(v))
 
     def grade(self, x):
-        """Grade (fraction) at chainages ``x`` (m); NaN off the fitted stretches."""
+        """Grade of the fitted alignment.
+
+        Parameters
+        ----------
+        x : array_like
+            Chainages (m).
+
+        Returns
+        -------
+        ndarray
+            Grade (fraction, + uphill with increasing chainage); NaN off the fitted stretches.
+        """
         return self._each(x, lambda a, v: a.grade(v))
 
 

@@ -67,11 +67,33 @@ class Alignment:
         return np.diff(self.y) / np.diff(self.x)
 
     def z(self, xs: np.ndarray) -> np.ndarray:
-        """Elevation (m) at chainages ``xs`` (m); see :func:`model_z`."""
+        """Elevation of this alignment (:func:`model_z`).
+
+        Parameters
+        ----------
+        xs : ndarray
+            Chainages (m), any order.
+
+        Returns
+        -------
+        ndarray
+            Elevation (m).
+        """
         return model_z(self.x, self.y, self.L, xs)
 
     def grade(self, xs: np.ndarray) -> np.ndarray:
-        """Grade (fraction) at chainages ``xs`` (m); see :func:`model_grade`."""
+        """Grade of this alignment (:func:`model_grade`).
+
+        Parameters
+        ----------
+        xs : ndarray
+            Chainages (m), any order.
+
+        Returns
+        -------
+        ndarray
+            Grade (fraction).
+        """
         return model_grade(self.x, self.y, self.L, xs)
 
 

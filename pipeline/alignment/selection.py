@@ -170,6 +170,17 @@ class StretchFitter(LocalFits):
     def removal_is_hopeless(self, X, Y, L, i) -> bool:
         """True when removing PVI ``i`` certainly costs more than the price.
 
+        Parameters
+        ----------
+        X, Y, L : ndarray
+            PVI chainages (m), elevations (m) and curve lengths (m).
+        i : int
+            The PVI.
+
+        Returns
+        -------
+        bool
+
         Notes
         -----
         A bend of grade change dG between arms of length l leaves at least n dG^2 l^2 / 48 of
@@ -187,7 +198,19 @@ class StretchFitter(LocalFits):
     def merge_is_hopeless(self, X, L, i) -> bool:
         """True when PVIs ``i`` and ``i + 1`` are separated by a tangent much longer than their
         curves (3 times the longer curve plus 4 bins): one curve cannot stand for a long
-        straight between two bends."""
+        straight between two bends.
+
+        Parameters
+        ----------
+        X, L : ndarray
+            PVI chainages (m) and curve lengths (m).
+        i : int
+            The first of the two PVIs.
+
+        Returns
+        -------
+        bool
+        """
         tangent = (X[i + 1] - L[i + 1] / 2) - (X[i] + L[i] / 2)
         return tangent > 3.0 * max(L[i], L[i + 1]) + 4.0 * self.opts["bin_m"]
 

@@ -301,17 +301,50 @@ TABLES: dict[str, tuple[Column, ...]] = {
 
 
 def table(name: str) -> tuple[Column, ...]:
-    """The columns of table ``name`` (a key of :data:`TABLES`), in order."""
+    """The columns of a table, in order.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`TABLES`.
+
+    Returns
+    -------
+    tuple of Column
+    """
     return TABLES[name]
 
 
 def column_names(name: str) -> list[str]:
-    """The column names of table ``name``, in order."""
+    """The column names of a table, in order.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`TABLES`.
+
+    Returns
+    -------
+    list of str
+    """
     return [c.name for c in TABLES[name]]
 
 
 def meaning(name: str, column: str) -> str | None:
-    """What ``column`` of table ``name`` holds (None where the table has no such column)."""
+    """What a column of a table holds.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`TABLES`.
+    column : str
+        The column's name.
+
+    Returns
+    -------
+    str or None
+        Its meaning; None where the table has no such column.
+    """
     for c in TABLES.get(name, ()):
         if c.name == column:
             return c.meaning
@@ -319,12 +352,34 @@ def meaning(name: str, column: str) -> str | None:
 
 
 def empty_frame(name: str) -> pd.DataFrame:
-    """A table with no rows and the columns and types of ``name``."""
+    """An empty table with the columns and types of a registered table.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`TABLES`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        No rows; one column per registered column, of its type.
+    """
     return pd.DataFrame({c.name: pd.Series(dtype=_DTYPES[c.dtype]) for c in TABLES[name]})
 
 
 def markdown(name: str) -> str:
-    """The columns of table ``name`` as a Markdown table (column, unit, meaning)."""
+    """The columns of a table as Markdown.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`TABLES`.
+
+    Returns
+    -------
+    str
+        A Markdown table: column, unit, meaning.
+    """
     rows = ["| column | unit | meaning |", "|---|---|---|"]
     rows += [f"| `{c.name}` | {c.unit} | {c.meaning} |" for c in TABLES[name]]
     return "\n".join(rows)

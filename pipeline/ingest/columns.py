@@ -12,7 +12,7 @@ from ..core.errors import InputError
 MAX_SPEED_KMH = 200.0
 
 _SPEED_SUFFIX = {"kmh": "kmh", "kph": "kmh", "km_h": "kmh", "mph": "mph"}
-_UNIT_WORDS = {"kmh": "km/h", "mph": "mph"}
+UNIT_WORDS = {"kmh": "km/h", "mph": "mph"}
 
 
 def overridden(cfg: Config, check: str) -> bool:
@@ -95,23 +95,23 @@ def check_road_columns(columns, cfg: Config, path) -> list[str]:
         named = _suffix_unit(col)
         if named and named != unit and not unit_set:
             if overridden(cfg, "speed_unit"):
-                notes.append(f"speed column {col!r} is named in {_UNIT_WORDS[named]} but read in "
-                             f"{_UNIT_WORDS[unit]} (checks.override = speed_unit)")
+                notes.append(f"speed column {col!r} is named in {UNIT_WORDS[named]} but read in "
+                             f"{UNIT_WORDS[unit]} (checks.override = speed_unit)")
             else:
                 raise InputError(
-                    f"{path}: speed column {col!r} is named in {_UNIT_WORDS[named]} but this run reads speeds in "
-                    f"{_UNIT_WORDS[unit]} (output.units = {cfg['output.units']!r}); set roads.speed_unit = "
-                    f"{named!r} or choose the {_UNIT_WORDS[unit]} column with --speed-column")
+                    f"{path}: speed column {col!r} is named in {UNIT_WORDS[named]} but this run reads speeds in "
+                    f"{UNIT_WORDS[unit]} (output.units = {cfg['output.units']!r}); set roads.speed_unit = "
+                    f"{named!r} or choose the {UNIT_WORDS[unit]} column with --speed-column")
         elif unit_set:
-            notes.append(f"speeds in column {col!r} read in {_UNIT_WORDS[unit]} (roads.speed_unit)")
+            notes.append(f"speeds in column {col!r} read in {UNIT_WORDS[unit]} (roads.speed_unit)")
         return notes
     # the default speed column is absent: a column in the other unit means the units are mixed up
     others = [c for c in columns if c.lower().startswith("speed") and _suffix_unit(c) not in (None, unit)]
     if others and not overridden(cfg, "speed_unit"):
         other_unit = _suffix_unit(others[0])
         raise InputError(
-            f"{path}: no speed column {col!r}, but {others[0]!r} holds speeds in {_UNIT_WORDS[other_unit]} while "
-            f"this run reads {_UNIT_WORDS[unit]} (output.units = {cfg['output.units']!r}); give --speed-column "
+            f"{path}: no speed column {col!r}, but {others[0]!r} holds speeds in {UNIT_WORDS[other_unit]} while "
+            f"this run reads {UNIT_WORDS[unit]} (output.units = {cfg['output.units']!r}); give --speed-column "
             f"{others[0]} with roads.speed_unit = {other_unit!r}, or use the matching --units")
     notes.append(f"no speed column {col!r} in the roads file: every road is judged at a substituted speed "
                  f"(class default or predicted operating speed; see data notes)")

@@ -14,8 +14,10 @@ import hashlib
 import warnings
 from pathlib import Path
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
+import pyogrio
 import pyproj
 import shapely
 
@@ -239,8 +241,6 @@ def _parse_wkt(column: pd.Series, path: Path, name: str) -> np.ndarray:
 
 def _read_parquet(path: Path):
     """``(GeoDataFrame, None)`` for GeoParquet, else ``(None, DataFrame)`` for plain Parquet."""
-    import geopandas as gpd
-
     try:
         return gpd.read_parquet(path), None
     except Exception as exc:
@@ -252,8 +252,6 @@ def _read_parquet(path: Path):
 
 def _read_vector(path: Path, layer: str, what: str, setting: str):
     """One layer of a vector file GDAL reads, as a GeoDataFrame."""
-    import geopandas as gpd
-
     lyr = _vector_layer(path, layer, what, setting)
     try:
         return gpd.read_file(path, layer=lyr, engine="pyogrio")
@@ -263,8 +261,6 @@ def _read_vector(path: Path, layer: str, what: str, setting: str):
 
 def _vector_layer(path: Path, layer: str, what: str, setting: str) -> str | None:
     """The layer to read: the one named, the only one, or the one called ``what``."""
-    import pyogrio
-
     try:
         layers = [row[0] for row in pyogrio.list_layers(path)]
     except Exception as exc:  # GDAL raises its own error types

@@ -12,7 +12,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pyproj
+import rasterio
 import shapely
+from rasterio.windows import Window
 
 from ..core.config import Config
 from ..core.errors import InputError
@@ -149,8 +151,6 @@ def open_ground(path: str | Path, cfg: Config, roads: Roads) -> DemGround | Poin
 
 def _open_dem(path: Path, cfg: Config, factor: float) -> DemGround:
     """A DEM's CRS, band, nodata value and bounds (no cells are read)."""
-    import rasterio
-
     try:
         with rasterio.open(path) as src:
             band = cfg["ground.band"]
@@ -240,9 +240,6 @@ def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 
         ``(array_m, affine)``: elevations (m) and the window's transform; ``(None, None)``
         when the points lie wholly outside the raster.
     """
-    import rasterio
-    from rasterio.windows import Window
-
     with rasterio.open(dem.path) as src:
         cols, rows = map_to_pixel(src.transform, x, y)
         finite = np.isfinite(cols) & np.isfinite(rows)
@@ -333,3 +330,45 @@ def _point_columns(frame: pd.DataFrame, path: Path, z_col: str, factor: float
         cols["y"] = shapely.get_y(geom.to_numpy())
         return "xy", cols
     raise InputError(f"{path}: ground points need columns x, y (or a point geometry) or chainage_m")
+
+
+def _unit_code(text) -> str | None:
+    if not text:
+        return None
+    low = str(text).strip().lower()
+    if "survey" in low or low in ("us_ft", "ftus", "us-ft", "us ft"):
+        return "us_ft"
+    if low in ("m", "metre", "meter", "metres", "meters"):
+        return "m"
+    if low in ("ft", "foot", "feet", "international foot", "foot (international)", "intl foot"):
+        return "ft"
+    return None
+
+
+UNIT_NAMES = {"m": "metres", "ft": "feet (international)", "us_ft": "US survey feet"}
+
+
+def dem_elevation_unit(dem) -> tuple[str | None, str]:
+    """The elevation unit a DEM states: its band's unit, else its CRS's vertical axis.
+
+    Parameters
+    ----------
+    dem : DemGround
+        The DEM.
+
+    Returns
+    -------
+    (str or None, str)
+        The unit ('m', 'ft' or 'us_ft'; None where the file states none) and where it was read.
+    """
+    with rasterio.open(dem.path) as src:
+        band_unit = src.units[dem.band - 1] if src.units else None
+    code = _unit_code(band_unit)
+    if code:
+        return code, f"band {dem.band} unit {band_unit!r}"
+    axes = dem.crs.axis_info
+    if len(axes) >= 3:
+        code = _unit_code(axes[2].unit_name)
+        if code:
+            return code, f"vertical CRS axis in {axes[2].unit_name}"
+    return None, "not stated in the file"

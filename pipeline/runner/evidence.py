@@ -29,15 +29,28 @@ import pandas as pd
 from ..core.config import Config
 from ..core.errors import InputError
 from ..core.units import kmh_per_mph, metres_per
-from ..ingest.columns import MAX_SPEED_KMH, _UNIT_WORDS, overridden, speed_unit
+from ..ingest.columns import MAX_SPEED_KMH, UNIT_WORDS, overridden, speed_unit
+from ..ingest.ground import UNIT_NAMES, dem_elevation_unit
 from ..ingest.readers import DemGround, PointGround
 from ..profile.sampler import GroundSampler
 from ..profile.stations import station_chainages
 
 def screen_speeds(table: pd.DataFrame, cfg: Config) -> np.ndarray:
-    """Blank impossible speeds in ``table["speed_raw"]`` (not positive, not finite, or above
-    200 km/h) so they are substituted, and return what each road's column held, as text
-    (``None`` where the value was usable)."""
+    """Blank impossible speeds so that they are substituted, and say what was found.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        The road table; its ``speed_raw`` column (the run's speed unit) is replaced by a new
+        column with impossible values (not positive, not finite, above 200 km/h) blanked.
+    cfg : Config
+        The run's settings (the speed unit).
+
+    Returns
+    -------
+    numpy.ndarray of object
+        Per road, what the column held where it was blank or impossible (text), else None.
+    """
     raw = table["speed_raw"].to_numpy(dtype=float)
     factor = kmh_per_mph() if speed_unit(cfg) == "mph" else 1.0
     with np.errstate(invalid="ignore"):
@@ -45,14 +58,29 @@ def screen_speeds(table: pd.DataFrame, cfg: Config) -> np.ndarray:
     found = np.full(len(raw), None, dtype=object)
     col = cfg["roads.speed_column"]
     for i in np.flatnonzero(bad):
-        found[i] = "empty" if np.isnan(raw[i]) else f"{raw[i]:g} {_UNIT_WORDS[speed_unit(cfg)]} (impossible)"
+        found[i] = "empty" if np.isnan(raw[i]) else f"{raw[i]:g} {UNIT_WORDS[speed_unit(cfg)]} (impossible)"
         found[i] = f"{col} = {found[i]}"
     table["speed_raw"] = np.where(bad, np.nan, raw)
     return found
 
 
 def speed_notes(table: pd.DataFrame, found: np.ndarray, cfg: Config) -> pd.DataFrame:
-    """One data note per road judged at a substituted speed: the value found and the value used."""
+    """One data note per road judged at a substituted speed.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        The road table with ``speed_kmh`` and ``speed_basis`` settled.
+    found : numpy.ndarray
+        What each road's speed column held, from :func:`screen_speeds`.
+    cfg : Config
+        The run's settings.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``road_id, note, from_m, to_m, detail``: the value found and the value used.
+    """
     if cfg["speed.source"] == "predicted":
         return pd.DataFrame(columns=["road_id", "note", "from_m", "to_m", "detail"])
     us = cfg["output.units"] == "us"
@@ -77,41 +105,29 @@ def speed_notes(table: pd.DataFrame, found: np.ndarray, cfg: Config) -> pd.DataF
 
 
 # ------------------------------------------------------------------------ ground
-def _unit_code(text) -> str | None:
-    if not text:
-        return None
-    low = str(text).strip().lower()
-    if "survey" in low or low in ("us_ft", "ftus", "us-ft", "us ft"):
-        return "us_ft"
-    if low in ("m", "metre", "meter", "metres", "meters"):
-        return "m"
-    if low in ("ft", "foot", "feet", "international foot", "foot (international)", "intl foot"):
-        return "ft"
-    return None
-
-
-_UNIT_NAMES = {"m": "metres", "ft": "feet (international)", "us_ft": "US survey feet"}
-
-
-def dem_elevation_unit(dem) -> tuple[str | None, str]:
-    """The elevation unit a DEM states: its band's unit, else its CRS's vertical axis."""
-    import rasterio
-
-    with rasterio.open(dem.path) as src:
-        band_unit = src.units[dem.band - 1] if src.units else None
-    code = _unit_code(band_unit)
-    if code:
-        return code, f"band {dem.band} unit {band_unit!r}"
-    axes = dem.crs.axis_info
-    if len(axes) >= 3:
-        code = _unit_code(axes[2].unit_name)
-        if code:
-            return code, f"vertical CRS axis in {axes[2].unit_name}"
-    return None, "not stated in the file"
-
-
 def settle_elevation_unit(ground, cfg: Config, notes: list[str]) -> dict:
-    """Use the DEM's own elevation unit; refuse an explicit setting that contradicts it."""
+    """Use the DEM's own elevation unit; refuse an explicit setting that contradicts it.
+
+    Parameters
+    ----------
+    ground : DemGround or PointGround
+        The ground model (its ``metres_per_unit`` is set from the DEM's unit where the DEM
+        states one and no unit was set explicitly).
+    cfg : Config
+        The run's settings (``ground.elevation_unit``, ``checks.override``).
+    notes : list of str
+        Where what was assumed or overridden is reported (appended to).
+
+    Returns
+    -------
+    dict
+        ``elevation_unit``, ``elevation_unit_source`` and, for a DEM, what it states.
+
+    Raises
+    ------
+    InputError
+        The DEM states another unit than an explicit ``--elevation-unit``.
+    """
     declared = cfg["ground.elevation_unit"]
     info = {"elevation_unit": declared, "elevation_unit_source": "setting" if "ground.elevation_unit"
             in cfg.explicit else "default"}
@@ -126,23 +142,43 @@ def settle_elevation_unit(ground, cfg: Config, notes: list[str]) -> dict:
     if "ground.elevation_unit" in cfg.explicit:
         if not overridden(cfg, "elevation_unit"):
             raise InputError(
-                f"{ground.path}: the DEM states its elevations in {_UNIT_NAMES[found]} ({where}) but "
+                f"{ground.path}: the DEM states its elevations in {UNIT_NAMES[found]} ({where}) but "
                 f"--elevation-unit says {declared!r}; drop --elevation-unit or correct it (or add 'elevation_unit' "
                 f"to checks.override to keep it)")
-        notes.append(f"elevations read in {_UNIT_NAMES[declared]} as set, against the DEM's {where} "
+        notes.append(f"elevations read in {UNIT_NAMES[declared]} as set, against the DEM's {where} "
                      f"(checks.override = elevation_unit)")
         return info
     ground.metres_per_unit = metres_per(found)
-    notes.append(f"elevations read in {_UNIT_NAMES[found]} as the DEM states ({where}), not the default "
+    notes.append(f"elevations read in {UNIT_NAMES[found]} as the DEM states ({where}), not the default "
                  f"{declared!r}")
     return info | {"elevation_unit": found, "elevation_unit_source": f"DEM ({where})"}
 
 
 def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: int | None = 300) -> dict:
-    """Sample the ground every ``step_m`` along the roads (at most ``max_roads``, spread over the
-    file) and measure coverage and grades: ``coverage_pct``, ``roads_without_ground`` (ids),
-    ``grade_pct`` (percentiles 50, 90, 99 of |grade| over ``step_m``), ``steep_pct`` (share of
-    length steeper than ``artefacts.max_road_grade_pct``) and ``sampled_km``."""
+    """Sample the ground along the roads and measure coverage and grades.
+
+    Parameters
+    ----------
+    roads : Roads
+        The roads read.
+    ground : DemGround or PointGround
+        The ground model.
+    cfg : Config
+        The run's settings.
+    step_m : float
+        Sampling step along each road (m).
+    max_roads : int or None
+        At most this many roads, spread over the file (None = all).
+
+    Returns
+    -------
+    dict
+        ``coverage_pct``, ``roads_without_ground`` (ids), ``grade_pct`` (percentiles 50, 90, 99
+        of |grade| over ``step_m``, %), ``steep_pct`` (share of length steeper than
+        ``artefacts.max_road_grade_pct``, %), ``spacing_m`` (the ground data's own spacing on
+        each road sampled: DEM cell or ground-point spacing, m), ``sampled_km`` and the
+        sampler's notes.
+    """
     t = roads.table
     ok = t["geometry"].notna() & t["skip_reason"].isna()
     rows = t[ok]
@@ -178,7 +214,20 @@ def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: in
 
 
 def likely_cause(roads, ground) -> str:
-    """The likeliest reason ground data miss the roads, for the refusal message."""
+    """The likeliest reason ground data miss the roads, for the refusal message.
+
+    Parameters
+    ----------
+    roads : Roads
+        The roads read.
+    ground : DemGround or PointGround
+        The ground model.
+
+    Returns
+    -------
+    str
+        What to check or set (a CRS not stated, lon/lat read as metres, road ids).
+    """
     if isinstance(ground, PointGround) and ground.mode == "xy" and ground.rows:
         x, y = ground.arrays["x"], ground.arrays["y"]
         lonlat = np.nanmax(np.abs(x)) <= 180 and np.nanmax(np.abs(y)) <= 90
@@ -217,7 +266,7 @@ def examine(roads, ground, cfg: Config, strict: bool = True) -> dict:
     if probe["steep_pct"] > cfg["checks.max_steep_pct"]:
         msg = (f"{ground.path}: {probe['steep_pct']:.1f} % of the road length is steeper than "
                f"{cfg['artefacts.max_road_grade_pct']:g} % (checks.max_steep_pct = {cfg['checks.max_steep_pct']:g}): "
-               f"not a road profile; elevations are read in {_UNIT_NAMES[info['elevation_unit']]}: check "
+               f"not a road profile; elevations are read in {UNIT_NAMES[info['elevation_unit']]}: check "
                f"--elevation-unit")
         if overridden(cfg, "grades"):
             notes.append(msg + " (run continued: checks.override = grades)")
