@@ -76,3 +76,18 @@ def test_grade_adjusted_ssd_reaches_horizontal_curves_and_hidden_zones():
         assert c.ssd_required_m == np.ceil(ssd / 5 - 1e-9) * 5
     # the setting changes the requirement (the sample's roads are not level)
     assert (hc["ssd_required_m"].to_numpy() != level.horizontal_curves["ssd_required_m"].to_numpy()).any()
+
+
+def test_us_run_writes_k_exactly_as_tabulated(tmp_path):
+    """In a US-customary run the required K is a whole number of feet per percent, as the
+    Green Book's design K values are (AASHTO 2018, ch. 3: rounded up to whole numbers); it used
+    to come out as 83.99 for 84 after a round trip through metres."""
+    import numpy as np
+
+    p = sample_paths()
+    settings = pipeline.Settings().replace(run__workers=1, output__units="us", roads__speed_unit="kmh",
+                                           ground__elevation_unit="m")
+    pipeline.audit(p["roads"], p["dem"], settings).write(tmp_path / "us")
+    for name in ("curves.csv", "deficiencies.csv"):
+        k = pd.read_csv(tmp_path / "us" / name)["k_required"].dropna().to_numpy()
+        assert len(k) and np.array_equal(k, np.round(k)), name

@@ -129,3 +129,14 @@ def test_readme_column_lists_come_from_the_registry(demo_out):
         path = demo_out / file
         cols = list(pd.read_parquet(path).columns) if file.endswith(".parquet") else list(pd.read_csv(path).columns)
         assert cols == tables.column_names(name), file
+
+
+def test_geopackage_is_version_1_2(demo_out):
+    """audit.gpkg is a GeoPackage 1.2 file: application_id 'GPKG' (0x47504B47) and user_version
+    10200, as the OGC GeoPackage standard (12-128r15) sets them; Python's sqlite3 as the reader.
+    GDAL 3.6 warns on 1.4 files that they may only be partially supported."""
+    import sqlite3
+
+    with sqlite3.connect(demo_out / "audit.gpkg") as con:
+        assert con.execute("PRAGMA application_id").fetchone()[0] == 0x47504B47
+        assert con.execute("PRAGMA user_version").fetchone()[0] == 10200

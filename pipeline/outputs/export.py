@@ -91,7 +91,7 @@ def _write_data_outputs(folder: Path, result, summary: dict, cfg, units) -> list
     ev = result.evaluation
     curves = curves_table(ev.curves)
     defs = deficiencies_table(ev.inventory)
-    hcurves = round_for_reading(result.hcurves)
+    hcurves = result.hcurves
     roads = result.road_table()
     notes = result.data_notes()
     out = {name: round_for_reading(units.table(frame)) for name, frame in

@@ -17,6 +17,11 @@ from ..profile.stations import Polyline
 from .tables import round_for_reading
 
 
+
+# GeoPackage 1.2 (OGC 12-128r15): read without warnings by GDAL 3.6 and the desktop GIS built on
+# it, which warn that a 1.4 file "may only be partially supported"
+GPKG_OPTIONS = {"VERSION": "1.2"}
+
 def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFrame,
                hcurves: pd.DataFrame, units=None) -> None:
     """Write the GeoPackage's layers.
@@ -48,7 +53,7 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     conv = (lambda f: round_for_reading(units.table(f))) if units is not None else (lambda f: f)
     road_attrs = result.road_table()
     gpd.GeoDataFrame(conv(road_attrs), geometry=list(t["geometry_src"].reindex(road_attrs["road_id"])), crs=crs) \
-        .to_file(path, layer="roads", driver="GPKG", engine="pyogrio")
+        .to_file(path, layer="roads", driver="GPKG", engine="pyogrio", dataset_options=GPKG_OPTIONS)
     cut = _centreline_cutter(roads, t)
     step = result.step_m
     for layer, frame, geom in (("curves", curves, cut(curves, "pvc_m", "pvt_m", 0.0)),

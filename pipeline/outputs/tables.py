@@ -100,7 +100,7 @@ def round_for_reading(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def curves_table(evaluation_curves: pd.DataFrame) -> pd.DataFrame:
-    """The vertical-curve table in contract order, rounded for reading.
+    """The vertical-curve table in contract order (rounded later, once, in the written units).
 
     Parameters
     ----------
@@ -117,11 +117,12 @@ def curves_table(evaluation_curves: pd.DataFrame) -> pd.DataFrame:
     if "k_below_table" not in c:
         c["k_below_table"] = c["k"] < c["k_required"]
     cols = CURVE_CONTRACT + [x for x in CURVE_EXTRA if x in c]
-    return round_for_reading(c[cols])
+    return c[cols]
 
 
 def deficiencies_table(inventory: pd.DataFrame) -> pd.DataFrame:
-    """The ranked deficiency inventory in contract order, rounded for reading.
+    """The ranked deficiency inventory in contract order (rounded later, once, in the written
+    units).
 
     Parameters
     ----------
@@ -135,7 +136,7 @@ def deficiencies_table(inventory: pd.DataFrame) -> pd.DataFrame:
         present; ``curve_no`` as a nullable integer (a stretch no curve limits has none).
     """
     cols = DEFICIENCY_CONTRACT + [x for x in DEFICIENCY_EXTRA if x in inventory]
-    out = round_for_reading(inventory[cols])
+    out = inventory[cols].copy()
     out["curve_no"] = out["curve_no"].astype("Int64")
     return out
 
