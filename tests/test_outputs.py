@@ -140,3 +140,21 @@ def test_geopackage_is_version_1_2(demo_out):
     with sqlite3.connect(demo_out / "audit.gpkg") as con:
         assert con.execute("PRAGMA application_id").fetchone()[0] == 0x47504B47
         assert con.execute("PRAGMA user_version").fetchone()[0] == 10200
+
+
+def test_severity_colours_darken_with_severity():
+    """Severity colours run light to dark with severity, so the worst is the strongest: relative
+    luminance (W3C WCAG 2.1 definition) severe < moderate < minor, and the map and the report's
+    style sheet use the same ones."""
+    from pipeline.outputs.figures import SEVERITY_STYLE
+    from pipeline.outputs.report_style import CSS, SEVERITY_COLOURS
+
+    def luminance(hex_colour):
+        rgb = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+        lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+        return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+
+    lum = {k: luminance(v) for k, v in SEVERITY_COLOURS.items()}
+    assert lum["severe"] < lum["moderate"] < lum["minor"]
+    for sev, colour in SEVERITY_COLOURS.items():
+        assert SEVERITY_STYLE[sev]["color"] == colour and colour in CSS

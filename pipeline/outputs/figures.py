@@ -1,9 +1,8 @@
 """The figures: the network map, a deficient curve's long profile and a road's long profile.
 
-Drawn with matplotlib (Agg), imported only when a figure is drawn. Colours (our
-own scheme, chosen to stay apart for the common colour-vision deficiencies, and
-backed by line width so it survives grey printing): minor #F4A259 (light
-orange), moderate #C2452D (brick red), severe #3B1F5C (deep purple); roads grey.
+Drawn with matplotlib (Agg), imported only when a figure is drawn. Severity colours are
+:data:`pipeline.outputs.report_style.SEVERITY_COLOURS` (one hue, light to dark, the worst the
+darkest), backed by line width so they survive grey printing; roads grey.
 """
 
 from __future__ import annotations
@@ -16,11 +15,12 @@ import pandas as pd
 import shapely
 
 from ..profile.stations import Polyline
+from .report_style import SEVERITY_COLOURS
 
 SEVERITY_STYLE = {
-    "minor": {"color": "#F4A259", "lw": 3.0},
-    "moderate": {"color": "#C2452D", "lw": 4.5},
-    "severe": {"color": "#3B1F5C", "lw": 6.0},
+    "minor": {"color": SEVERITY_COLOURS["minor"], "lw": 3.0},
+    "moderate": {"color": SEVERITY_COLOURS["moderate"], "lw": 4.5},
+    "severe": {"color": SEVERITY_COLOURS["severe"], "lw": 6.0},
 }
 ROAD_GREY = "#9A9A9A"
 

@@ -5,6 +5,11 @@ script records how many images loaded (``data-images-loaded`` on the body), for
 the browser check.
 """
 
+# severity colours, one place for every output: one hue from light to dark, the worst the darkest,
+# so the order reads the same to every kind of colour vision and in grey (the 4-class "Oranges"
+# sequential scheme of ColorBrewer, Brewer 2003, its three darkest classes)
+SEVERITY_COLOURS = {"minor": "#FDBE85", "moderate": "#FD8D3C", "severe": "#D94701"}
+
 CSS = """
 @page { size: A4; margin: 14mm; }
 body { font-family: "DejaVu Sans", Arial, sans-serif; font-size: 10.5pt; color: #1a1a1a; margin: 1.5em auto;
@@ -19,10 +24,12 @@ th, td { border: 1px solid #c8c8c8; padding: 2px 4px; text-align: left; vertical
 th { background: #DDE4EE; } td.n { text-align: right; font-variant-numeric: tabular-nums; }
 img { max-width: 100%; } .curve { page-break-before: always; break-before: page; }
 .facts td:first-child { width: 16em; color: #444; } .small { font-size: 8.5pt; color: #444; }
-.sev-minor { border-left: 6px solid #F4A259; } .sev-moderate { border-left: 6px solid #C2452D; }
-.sev-severe { border-left: 6px solid #3B1F5C; }
+.sev-minor { border-left: 6px solid @minor@; } .sev-moderate { border-left: 6px solid @moderate@; }
+.sev-severe { border-left: 6px solid @severe@; }
 @media print { body { max-width: none; margin: 0; } a { color: black; } }
 """
+for _name, _colour in SEVERITY_COLOURS.items():
+    CSS = CSS.replace(f"@{_name}@", _colour)
 
 LOADED_JS = """window.addEventListener('load', function () {
   var imgs = Array.prototype.slice.call(document.images);
