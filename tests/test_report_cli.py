@@ -285,3 +285,15 @@ def test_us_units_with_the_metric_set_match_exactly(us_inputs, tmp_path, run_cli
     np.testing.assert_allclose(d["ssd_required_ft"] * 0.3048, m["ssd_required_m"], atol=1e-3)  # 0.001 ft rounding
     np.testing.assert_allclose(d["speed_mph"] * 1.609344, m["speed_kmh"], atol=0.06)
     np.testing.assert_allclose(d["priority_score"], m["priority_score"], atol=0.11)
+
+
+def test_report_text_has_no_glitches(demo_out):
+    """No 'none:' after a hazard that is none, no doubled parentheses around the speed basis,
+    and sag pages carry no 'hidden beyond the crest' row (common practice, no source: text an
+    engineer would send on without editing)."""
+    html = (demo_out / "report.html").read_text(encoding="utf-8")
+    assert "none: " not in html and "))" not in html
+    for section in html.split("<section class='curve")[1:]:
+        title = section.split("</h3>")[0]
+        if "(sag)" in title:
+            assert "hidden beyond the crest" not in section

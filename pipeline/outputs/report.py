@@ -297,7 +297,7 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
                           f"K = {L(c['k']):.1f} (table {L(c['k_required']):.0f}) {E}/%"),
         ("PVC / PVI / PVT", f"{L(c['pvc_m']):,.0f} / {L(c['pvi_m']):,.0f} / {L(c['pvt_m']):,.0f} {E}"),
         ("grades", f"{c['g1_pct']:+.2f} % to {c['g2_pct']:+.2f} %"),
-        ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S} ({_e(worst['speed_basis'])})"),
+        ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S}, {_e(worst['speed_basis'])}"),
         ("SSD needed / available", f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} {E} "
                                    f"({worst['direction']} chainage)"),
         ("speed the curve supports", f"{V(worst['supported_speed_kmh']):.0f} {S} "
@@ -310,8 +310,9 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
                                f"L &plusmn; {L(c['length_sd_m']):.0f} {E}"),
     ]
     if c["kind"] == "crest":
-        facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {worst['hazard_detail']}"
-                      if isinstance(worst.get("hazard_detail"), str) else "")))
+        detail = worst.get("hazard_detail")
+        shown = worst["hidden_hazard"] != "none" and isinstance(detail, str) and detail.strip()
+        facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {_e(detail)}" if shown else "")))
     return facts + [
         ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
                                  zip(rows["direction"], rows["from_m"], rows["to_m"]))),
