@@ -297,3 +297,31 @@ def test_report_text_has_no_glitches(demo_out):
         title = section.split("</h3>")[0]
         if "(sag)" in title:
             assert "hidden beyond the crest" not in section
+
+
+def test_report_contents_and_links_reach_every_page(demo_out):
+    """The report has a table of contents whose links all land on a section, and every curve
+    page is reachable by a link from the ranked table (Python's html.parser as the reader)."""
+    from html.parser import HTMLParser
+
+    class Links(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.ids, self.hrefs, self.curve_pages = set(), [], []
+
+        def handle_starttag(self, tag, attrs):
+            a = dict(attrs)
+            if "id" in a:
+                self.ids.add(a["id"])
+                if tag == "section" and a["id"].startswith("curve-"):
+                    self.curve_pages.append(a["id"])
+            if tag == "a" and a.get("href", "").startswith("#"):
+                self.hrefs.append(a["href"][1:])
+
+    p = Links()
+    p.feed((demo_out / "report.html").read_text(encoding="utf-8"))
+    assert "contents" in p.ids
+    assert all(h in p.ids for h in p.hrefs), [h for h in p.hrefs if h not in p.ids]
+    for section in ("summary", "data-quality", "map", "inventory", "curves", "method", "notes", "cautions"):
+        assert section in p.hrefs and section in p.ids
+    assert p.curve_pages and set(p.curve_pages) <= set(p.hrefs)

@@ -43,14 +43,34 @@ def _num(v, nd=0) -> str:
     return "" if not np.isfinite(f) else f"{f:,.{nd}f}"
 
 
-def _table(frame: pd.DataFrame, numeric_nd: dict[str, int]) -> str:
-    """A table as HTML; the columns in ``numeric_nd`` right-aligned with that many decimals."""
+def curve_anchor(road_id, curve_no) -> str:
+    """The id of a curve's page in the report (letters, digits and hyphens only)."""
+    slug = "".join(ch if ch.isalnum() else "-" for ch in str(road_id))
+    return f"curve-{slug}-{int(curve_no)}"
+
+
+TOC = (("summary", "Network summary"), ("data-quality", "What this ground data can support"),
+       ("map", "Network overview"), ("inventory", "Ranked inventory"), ("curves", "Deficient curves"),
+       ("method", "Method and criteria"), ("notes", "Data notes and skipped roads"), ("cautions", "Cautions"))
+
+
+def _toc() -> str:
+    """The table of contents: a link to every section."""
+    items = "".join(f"<li><a href='#{a}'>{_e(t)}</a></li>" for a, t in TOC)
+    return f"<nav id='contents'><h2>Contents</h2><ol>{items}</ol></nav>"
+
+
+def _table(frame: pd.DataFrame, numeric_nd: dict[str, int], raw: tuple[str, ...] = ()) -> str:
+    """A table as HTML; the columns in ``numeric_nd`` right-aligned with that many decimals,
+    those in ``raw`` written as given (HTML made here, e.g. links)."""
     head = "".join(f"<th>{_e(str(c).replace('_', ' '))}</th>" for c in frame.columns)
     body = []
     for _, r in frame.iterrows():
         cells = []
         for c in frame.columns:
-            if c in numeric_nd:
+            if c in raw:
+                cells.append(f"<td>{r[c]}</td>")
+            elif c in numeric_nd:
                 cells.append(f'<td class="n">{_num(r[c], numeric_nd[c])}</td>')
             else:
                 cells.append(f"<td>{_e(r[c])}</td>")
@@ -174,10 +194,11 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
         pages = report_pages(result, cfg, units)
     if pngs is None:
         pngs = [curve_png(p["spec"]) for p in pages]
-    parts = _head(result, summary, units, caution)
+    parts = _head(result, summary, units, caution) + [_toc()]
     parts += _summary_section(result, summary, units)
     parts += _map_section(result, units, map_png)
-    parts += _inventory_section(result.evaluation.inventory, units)
+    paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
+    parts += _inventory_section(result.evaluation.inventory, units, paged)
     parts += _curve_section(pages, pngs, units)
     parts += _method_section(method)
     parts += _notes_section(result, summary, units)
@@ -246,8 +267,9 @@ def _map_section(result, units, map_png: str | None) -> list[str]:
             f"src='{map_png}'>" if map_png else FIGURE_MISSING.format(what="The overview map")]
 
 
-def _inventory_section(inv: pd.DataFrame, units) -> list[str]:
-    """The ranked inventory's first 50 stretches, in the run's units."""
+def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None) -> list[str]:
+    """The ranked inventory's first 50 stretches, in the run's units; the curve number links to
+    the curve's page where it has one (``paged``: (road_id, curve_no) pairs)."""
     L, E, V, S = units.length, units.length_label, units.speed, units.speed_label
     n_und = int((inv["verdict"] == "undetermined").sum()) if len(inv) else 0
     parts = ["<h2 id='inventory'>Ranked inventory (top 50)</h2>",
@@ -257,18 +279,22 @@ def _inventory_section(inv: pd.DataFrame, units) -> list[str]:
              f"fix. Stretches whose crest hides a hazard come first.</p>"]
     if len(inv):
         top = inv.head(50)
+        paged = paged or set()
+        curve = [(f"<a href='#{curve_anchor(r, c)}'>{int(c)}</a>" if pd.notna(c) and (r, int(c)) in paged
+                  else ("" if pd.isna(c) else str(int(c)))) for r, c in zip(top["road_id"], top["curve_no"])]
         shown = pd.DataFrame({
             "rank": top["rank"], "road": top["road_id"] + " " + top["road_name"].fillna(""),
-            "curve": top["curve_no"], "kind": top["kind"], "direction": top["direction"],
+            "curve": curve, "kind": top["kind"], "direction": top["direction"],
             f"from ({E})": L(top["from_m"]), f"to ({E})": L(top["to_m"]),
             f"speed ({S})": V(top["speed_kmh"]), f"supports ({S})": V(top["supported_speed_kmh"]),
             f"SSD needed ({E})": L(top["ssd_required_m"]), f"sight ({E})": L(top["sight_available_m"]),
             f"short by ({E})": L(top["shortfall_m"]), "severity": top["severity"],
             "hidden hazard": top["hidden_hazard"], "score": top["priority_score"],
-            "verdict": top["verdict"], "P(deficient)": top["p_deficient"], "confidence": top["confidence"],
+            "verdict": top["verdict"], "P(deficient)": top["p_deficient"], "data confidence": top["confidence"],
+            "treatment hint": top["treatment_hint"],
         })
-        nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "curve": 0, "P(deficient)": 2}
-        parts.append(_table(shown, nd))
+        nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "P(deficient)": 2}
+        parts.append(_table(shown, nd, raw=("curve",)))
     return parts
 
 
@@ -278,10 +304,14 @@ def _curve_section(pages: list[dict], pngs: list, units) -> list[str]:
     if pages:
         parts.append(f"<p>{len(pages)} curve(s), in rank order; each long profile shows the driver position with "
                      f"the least sight distance and the sight line it has against the one it needs.</p>")
+        links = ", ".join(f"<a href='#{curve_anchor(p['road_id'], p['curve_no'])}'>{_e(p['road_id'])} curve "
+                          f"{int(p['curve_no'])}</a>" for p in pages)
+        parts.append(f"<p class='small'>Pages: {links}.</p>")
     for page, png in zip(pages, pngs):
         rows = page["rows"]
         worst = rows.loc[rows["rank"].idxmin()]
-        parts.append(f"<section class='curve sev-{_e(worst['severity'])}'><h3>{_e(page['title'])}</h3>"
+        parts.append(f"<section id='{curve_anchor(page['road_id'], page['curve_no'])}' "
+                     f"class='curve sev-{_e(worst['severity'])}'><h3>{_e(page['title'])}</h3>"
                      + (f"<img alt='Long profile of {_e(page['road_id'])} curve {page['curve_no']}' src='{png}'>"
                         if png else FIGURE_MISSING.format(what="This curve's long profile")) +
                      f"<table class='facts'>{_facts(_curve_facts(page['curve'], rows, worst, units), False)}"
