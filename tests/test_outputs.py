@@ -158,3 +158,22 @@ def test_severity_colours_darken_with_severity():
     assert lum["severe"] < lum["moderate"] < lum["minor"]
     for sev, colour in SEVERITY_COLOURS.items():
         assert SEVERITY_STYLE[sev]["color"] == colour and colour in CSS
+
+
+def test_geopackage_point_layers_lie_on_their_roads(demo_out):
+    """audit.gpkg has a point per PVI and per hidden hazard, each on its road's centreline
+    (shapely's distance as the reference, within 1 cm)."""
+    import geopandas as gpd
+
+    gpkg = demo_out / "audit.gpkg"
+    roads = gpd.read_file(gpkg, layer="roads").set_index("road_id")
+    pvis = gpd.read_file(gpkg, layer="pvis")
+    hazards = gpd.read_file(gpkg, layer="hidden_hazards")
+    curves = pd.read_csv(demo_out / "curves.csv")
+    defs = pd.read_csv(demo_out / "deficiencies.csv")
+    assert len(pvis) == len(curves)
+    assert len(hazards) == int(((defs["hidden_hazard"] != "none") & defs["hazard_chainage_m"].notna()).sum())
+    for layer in (pvis, hazards):
+        assert (layer.geom_type == "Point").all() and layer.geometry.is_valid.all()
+        dist = [roads.loc[r, "geometry"].distance(p) for r, p in zip(layer["road_id"], layer.geometry)]
+        assert max(dist) < 0.01

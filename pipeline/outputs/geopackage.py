@@ -45,7 +45,8 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     Returns
     -------
     None
-        Layers ``roads``, ``curves``, ``deficiencies`` and ``horizontal_curves``.
+        Layers ``roads``, ``curves``, ``deficiencies`` and ``horizontal_curves`` (lines), and
+        ``pvis`` and ``hidden_hazards`` (points).
     """
     roads = result.roads
     t = roads.table.set_index("road_id", drop=False)
@@ -61,6 +62,21 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
                                ("horizontal_curves", hcurves, cut(hcurves, "start_m", "end_m", 0.0))):
         gpd.GeoDataFrame(conv(frame), geometry=geom, crs=crs).to_file(path, layer=layer, driver="GPKG",
                                                                     engine="pyogrio")
+    for layer, frame in _point_layers(curves, deficiencies):
+        points = [shapely.points(shapely.get_coordinates(g)[0]) for g in cut(frame, "at_m", "at_m", 0.0)]
+        gpd.GeoDataFrame(conv(frame), geometry=points, crs=crs).to_file(path, layer=layer, driver="GPKG",
+                                                                      engine="pyogrio")
+
+
+def _point_layers(curves: pd.DataFrame, deficiencies: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
+    """The point layers: each vertical curve's PVI (``pvis``), and each hazard hidden beyond a
+    crest where a driver first meets it (``hidden_hazards``); ``at_m`` is the point's chainage."""
+    pvis = curves[["road_id", "curve_no", "kind", "pvi_m", "a_pct", "length_m", "k", "verdict",
+                   "confidence"]].assign(at_m=curves["pvi_m"])
+    hidden = deficiencies[(deficiencies["hidden_hazard"] != "none") & deficiencies["hazard_chainage_m"].notna()]
+    hazards = hidden[["rank", "road_id", "curve_no", "direction", "hidden_hazard", "hazard_detail",
+                      "hazard_chainage_m", "severity", "verdict"]].assign(at_m=hidden["hazard_chainage_m"])
+    return [("pvis", pvis), ("hidden_hazards", hazards)]
 
 
 def _centreline_cutter(roads, t: pd.DataFrame):
