@@ -177,3 +177,22 @@ def test_geopackage_point_layers_lie_on_their_roads(demo_out):
         assert (layer.geom_type == "Point").all() and layer.geometry.is_valid.all()
         dist = [roads.loc[r, "geometry"].distance(p) for r, p in zip(layer["road_id"], layer.geometry)]
         assert max(dist) < 0.01
+
+
+def test_geopackage_layers_carry_default_styles(demo_out):
+    """Every spatial layer of audit.gpkg has a default style in the layer_styles table, an SLD
+    document that parses (xml.etree as the reader), and the deficiencies are styled by severity
+    with the report's colours."""
+    import sqlite3
+    import xml.etree.ElementTree as ET
+
+    from pipeline.outputs.report_style import SEVERITY_COLOURS
+
+    with sqlite3.connect(demo_out / "audit.gpkg") as con:
+        spatial = {r[0] for r in con.execute("SELECT table_name FROM gpkg_geometry_columns")}
+        styles = dict(con.execute("SELECT f_table_name, styleSLD FROM layer_styles WHERE useAsDefault"))
+    assert spatial and spatial <= set(styles)
+    for sld in styles.values():
+        ET.fromstring(sld.encode("utf-8"))
+    for colour in SEVERITY_COLOURS.values():
+        assert colour in styles["deficiencies"] and colour in styles["hidden_hazards"]

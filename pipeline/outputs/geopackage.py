@@ -15,6 +15,7 @@ import shapely
 
 from ..profile.stations import Polyline
 from .tables import round_for_reading
+from .gpkg_styles import store_styles
 
 
 
@@ -66,6 +67,7 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
         points = [shapely.points(shapely.get_coordinates(g)[0]) for g in cut(frame, "at_m", "at_m", 0.0)]
         gpd.GeoDataFrame(conv(frame), geometry=points, crs=crs).to_file(path, layer=layer, driver="GPKG",
                                                                       engine="pyogrio")
+    store_styles(path, ["roads", "curves", "deficiencies", "horizontal_curves", "pvis", "hidden_hazards"])
 
 
 def _point_layers(curves: pd.DataFrame, deficiencies: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
