@@ -91,3 +91,25 @@ def test_us_run_writes_k_exactly_as_tabulated(tmp_path):
     for name in ("curves.csv", "deficiencies.csv"):
         k = pd.read_csv(tmp_path / "us" / name)["k_required"].dropna().to_numpy()
         assert len(k) and np.array_equal(k, np.round(k)), name
+
+
+def test_us_run_text_is_in_feet(tmp_path):
+    """In a US-customary run the words are in US units too: hazard details, data notes and the
+    report's statement of what the data cannot judge carry no '<number> m' or '<number> km/h'
+    (the foot as 0.3048 m; common practice, no source)."""
+    import re
+
+    p = sample_paths()
+    settings = pipeline.Settings().replace(run__workers=1, output__units="us", roads__speed_unit="kmh",
+                                           ground__elevation_unit="m", structures__file=str(p["structures"]),
+                                           junctions__file=str(p["junctions"]))
+    pipeline.audit(p["roads"], p["dem"], settings).write(tmp_path / "us")
+    metric = re.compile(r"\d m\b|\d km/h")
+    defs = pd.read_csv(tmp_path / "us" / "deficiencies.csv")
+    notes = pd.read_csv(tmp_path / "us" / "data_notes.csv")
+    texts = list(defs["hazard_detail"].dropna()) + list(notes["detail"].dropna())
+    assert texts and not [t for t in texts if metric.search(t)]
+    assert any(" ft" in t for t in texts)
+    html = (tmp_path / "us" / "report.html").read_text(encoding="utf-8")
+    words = html.split("What this ground data can support")[1].split("</ul>")[0]
+    assert not metric.search(words)

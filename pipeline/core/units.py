@@ -8,6 +8,8 @@ confused and never typed in by hand.
 
 from __future__ import annotations
 
+import re
+
 import pyproj
 
 from .errors import InputError
@@ -58,6 +60,11 @@ def kmh_per_mph() -> float:
     """
     return float(pyproj.get_units_map(category="linear")["Statute mile"].conv_factor) / 1000.0
 
+
+
+# "<number> m" and "<number> km/h" in text written by the stages (a number, a space, the unit)
+_METRES = re.compile(r"(?<![\w.])(\d[\d,]*(?:\.\d+)?) m\b")
+_KMH = re.compile(r"(?<![\w.])(\d[\d,]*(?:\.\d+)?) km/h\b")
 
 class OutputUnits:
     """How results are written: metric (m, km/h, km) or US customary (ft, mph, mi).
@@ -186,4 +193,31 @@ class OutputUnits:
             d = self.divisor(col)
             if d != 1.0 and frame[col].dtype.kind in "fiu":
                 out[col] = frame[col] / d
+            elif frame[col].dtype.kind not in "fiubmMc":  # text (object or string dtype)
+                out[col] = frame[col].map(lambda v: self.text(v) if isinstance(v, str) else v)
         return out.rename(columns={c: self.column(c) for c in frame.columns})
+
+    def text(self, words: str) -> str:
+        """Words written by the stages in metric units, with their lengths and speeds in these.
+
+        Parameters
+        ----------
+        words : str
+            Text such as "junction with WV-05 at 2350 m" or "judged at 80 km/h".
+
+        Returns
+        -------
+        str
+            The same text with every "<number> m" and "<number> km/h" converted (to the
+            precision written) where the units are US customary; unchanged otherwise.
+        """
+        if not self.us:
+            return words
+
+        def convert(match, per, label):
+            number = match.group(1)
+            decimals = len(number.split(".")[1]) if "." in number else 0
+            return f"{float(number.replace(',', '')) / per:,.{decimals}f} {label}"
+
+        words = _KMH.sub(lambda m: convert(m, kmh_per_mph(), "mph"), words)
+        return _METRES.sub(lambda m: convert(m, self.m_per_length, self.length_label), words)

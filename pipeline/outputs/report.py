@@ -152,7 +152,7 @@ def data_quality_html(dq: dict | None, units) -> str:
     if not dq:
         return ""
     facts = data_quality_facts(dq, units)
-    words = "".join(f"<li>{_e(t)}</li>" for t in dq["cannot_judge"])
+    words = "".join(f"<li>{_e(units.text(t))}</li>" for t in dq["cannot_judge"])
     return (f"<h3 id='data-quality'>What this ground data can support</h3><table class='facts'>{_facts(facts)}"
             f"</table><ul>{words}</ul>")
 

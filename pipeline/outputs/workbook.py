@@ -42,7 +42,7 @@ def data_quality_lines(dq: dict | None, units) -> list[tuple[str, str]]:
     if not dq:
         return []
     lines = [(label[0].upper() + label[1:], text) for label, text in data_quality_facts(dq, units)]
-    lines += [("What this data cannot judge", t) for t in dq["cannot_judge"]]
+    lines += [("What this data cannot judge", units.text(t)) for t in dq["cannot_judge"]]
     return lines
 
 
