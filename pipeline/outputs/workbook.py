@@ -5,8 +5,9 @@ in plain words, the five worst sites, the table by road class), one sheet per ta
 (frozen header row with a filter, column widths to fit, a note on each header cell
 saying what it holds and its unit, a number format chosen by the column's unit, and
 on the Deficiencies sheet rows shaded by severity) and a method sheet with the
-criteria set's source and the cautions. Values are written as numbers, rounded only
-by their display format. xlsxwriter is imported only when a workbook is written.
+criteria set's source and the cautions. Values are written as numbers at the precision
+of the CSV tables; the display format rounds only what is shown. xlsxwriter is imported
+only when a workbook is written.
 """
 
 from __future__ import annotations
