@@ -67,7 +67,7 @@ def test_one_figure_failing_gives_a_placeholder(tmp_path, samples, run_cli, monk
     assert "figure broke" in err and "Traceback" not in err
     html = (out / "report.html").read_text()
     assert html.count("figure-missing") == 1
-    assert html.count("<section class='curve") == len(calls) > 1
+    assert html.count("class='curve sev-") == len(calls) > 1
     run = json.loads((out / "run.json").read_text())
     assert len(run["output_failures"]) == 1 and "curve" in run["output_failures"][0]["output"]
     _data_outputs_complete(out)

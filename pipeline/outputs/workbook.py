@@ -18,13 +18,14 @@ import numpy as np
 import pandas as pd
 
 from .method import CAUTION_TEXT, data_quality_facts
+from .report_style import SEVERITY_COLOURS
 from .tables import column_note
 
 
-# severity shading, lightest to darkest of one hue (ColorBrewer "Oranges"), so the order reads
+# severity shading in the report's colours (one hue, lightest to darkest), so the order reads
 # without telling hues apart: (severity, fill, font colour)
-SEVERITY_SHADES = (("severe", "#E6550D", "#FFFFFF"), ("moderate", "#FDAE6B", "#000000"),
-                   ("minor", "#FEE6CE", "#000000"))
+SEVERITY_SHADES = tuple((s, SEVERITY_COLOURS[s], "#FFFFFF" if s == "severe" else "#000000")
+                        for s in ("severe", "moderate", "minor"))
 UNDETERMINED_FONT = "#6E6E6E"  # grey italics for rows whose verdict is undetermined
 
 # the table of pipeline.core.tables each data sheet holds (its header notes come from there)
