@@ -326,3 +326,16 @@ def test_report_contents_and_links_reach_every_page(demo_out):
     for section in ("summary", "data-quality", "map", "inventory", "curves", "method", "notes", "cautions"):
         assert section in p.hrefs and section in p.ids
     assert p.curve_pages and set(p.curve_pages) <= set(p.hrefs)
+
+
+def test_counts_in_the_class_table_are_whole(demo_out):
+    """The report's by-class table writes counts as whole numbers and only lengths with decimals
+    (common practice, no source); 'undetermined' contains 'mi' and once got two decimals."""
+    import re
+
+    html = (demo_out / "report.html").read_text(encoding="utf-8")
+    table = html.split("<h3>By road class</h3>")[1].split("</table>")[0]
+    heads = re.findall(r"<th>(.*?)</th>", table)
+    row = re.findall(r'<td class="n">(.*?)</td>', table.split("<tbody>")[1].split("</tr>")[0])
+    for head, cell in zip([h for h in heads if h != "road class"], row):
+        assert ("." in cell) == ("km" in head.split() or "mi" in head.split()), (head, cell)

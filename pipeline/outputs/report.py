@@ -253,7 +253,7 @@ def _summary_section(result, summary: dict, units) -> list[str]:
     parts.append(f"<p>Deficient length (each direction counted): minor {sev_km['minor']:.2f}, moderate "
                  f"{sev_km['moderate']:.2f}, severe {sev_km['severe']:.2f} {units.distance_label}.</p>")
     by_class = units.table(ev.summary)
-    nd = {c: (2 if ("km" in c or "mi" in c) else 0) for c in by_class.columns if c != "road_class"}
+    nd = {c: (2 if {"km", "mi"} & set(c.split("_")) else 0) for c in by_class.columns if c != "road_class"}
     parts.append("<h3>By road class</h3>" + _table(by_class, nd))
     parts.append(data_quality_html(summary.get("data_quality"), units))
     return parts
