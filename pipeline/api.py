@@ -23,6 +23,7 @@ import weakref
 from datetime import datetime, timezone
 from pathlib import Path
 
+import geopandas as gpd
 import pandas as pd
 
 from .core.config import Config, Settings, load_config
@@ -51,10 +52,10 @@ def _as_path(obj, folder: Path, name: str) -> tuple[str, bool]:
         return str(obj.name), False
     if isinstance(obj, pd.DataFrame):
         path = folder / f"{name}.parquet"
-        if hasattr(obj, "geometry") and hasattr(obj, "to_parquet") and "geometry" in getattr(obj, "columns", []):
+        if isinstance(obj, gpd.GeoDataFrame):  # GeoParquet, whatever its geometry column is called
             obj.to_parquet(path)
         else:
-            pd.DataFrame(obj).to_parquet(path, index=False)
+            obj.to_parquet(path, index=False)
         return str(path), True
     raise TypeError(f"{name}: give a path, a (Geo)DataFrame or an open raster, not {type(obj).__name__}")
 
