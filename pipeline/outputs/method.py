@@ -152,8 +152,10 @@ def method_lines(result, cfg) -> list[tuple[str, str]]:
     Returns
     -------
     list of (str, str)
-        The caution first, then the criteria set, the method of each stage, the
-        severity bands and the priority formula.
+        The caution first, then the criteria set with its table of design values and
+        what of it was checked against the publication, the method of each stage, the
+        severity bands and the priority formula; lengths and speeds in the run's output
+        units (``output.units``), the set's values as tabulated where the set is in them.
 
     Notes
     -----
@@ -183,9 +185,10 @@ def method_lines(result, cfg) -> list[tuple[str, str]]:
         ("Edition", str(c["edition"])),
         ("Design values", design_values_text(cs, units)),
         ("Checked against the publication", str(c["source_marks"])),
-        ("Heights", f"eye {_set_length(c['eye_height'], cs, units)}, object {_set_length(c['object_height'], cs, units)}, "
-                    f"headlight {_set_length(c['headlight_height'], cs, units)} ({lu}); headlight beam {c['beam_angle_deg']:g} "
-                    "degree(s) upward"),
+        ("Heights", f"eye {_set_length(c['eye_height'], cs, units)}, object "
+                    f"{_set_length(c['object_height'], cs, units)}, headlight "
+                    f"{_set_length(c['headlight_height'], cs, units)} ({lu}); headlight beam "
+                    f"{c['beam_angle_deg']:g} degree(s) upward"),
         ("Braking", f"reaction time {c['reaction_time_s']:g} s, deceleration "
                     f"{_set_length(c['deceleration'], cs, units)} {lu}/s2"),
         ("Required SSD", "design SSD of the criteria table at a tabulated speed; between rows the set's formula "
