@@ -163,3 +163,24 @@ def test_us_run_formats_feet_and_mph(us_out):
     assert all(isinstance(c.value, numbers.Number) for c in cells["from_ft"])
     brief = [r[1] for r in _summary_text(us_out / "deficiencies.xlsx") if r and r[0] == "In brief"][0]
     assert " mi in all" in brief
+
+
+def test_workbook_prints_landscape_fit_to_width_with_header_repeated(tmp_path):
+    """Each sheet is set to print landscape, one page wide, with the header row repeated on table
+    sheets (read back with openpyxl, a reference reader; common practice, no source)."""
+    import openpyxl
+    import pandas as pd
+
+    from pipeline.outputs.workbook import write_xlsx
+
+    frame = pd.DataFrame({"road_id": ["R1"] * 3, "length_m": [1.0, 2.0, 3.0]})
+    path = tmp_path / "w.xlsx"
+    write_xlsx(path, {"Deficiencies": frame}, [("Method", "x")], [("Caution", "y")])
+    wb = openpyxl.load_workbook(path)
+    for ws in wb.worksheets:
+        assert ws.page_setup.orientation == "landscape", ws.title
+        # fitToWidth 1 is the file format's default, so it may be left out; fitToHeight 0 is 'as many as needed'
+        assert ws.sheet_properties.pageSetUpPr.fitToPage and ws.page_setup.fitToWidth in (None, 1), ws.title
+        assert ws.page_setup.fitToHeight == 0, ws.title
+        assert str(ws.page_setup.paperSize) == "9", ws.title
+    assert wb["Deficiencies"].print_title_rows.replace("$", "") == "1:1"

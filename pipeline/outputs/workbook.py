@@ -269,6 +269,7 @@ def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[t
 
     wb = xlsxwriter.Workbook(str(path), {"nan_inf_to_errors": True, "strings_to_numbers": False})
     fmt = _formats(wb)
+    paper = _paper(units)
     _summary_sheet(wb, fmt, summary_lines + [("", "")] + brief_lines(sheets), sheets.get("_summary"))
     for name, frame in sheets.items():
         if not name.startswith("_"):
@@ -276,7 +277,26 @@ def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[t
             if name == "Deficiencies":
                 _severity_shading(wb, sh, frame)
     _method_sheet(wb, fmt, method_lines)
+    for ws in wb.worksheets():
+        _print_setup(ws, paper, ws.name not in ("Summary", "Method"))
     wb.close()
+
+
+def _paper(units) -> int:
+    """The printed paper: A4 (xlsxwriter code 9) for metric runs, US Letter (code 1) for US runs."""
+    return 1 if units is not None and units.us else 9
+
+
+def _print_setup(ws, paper: int, table: bool) -> None:
+    """Print as a reader expects: landscape, the full width on one page, the header row repeated
+    on every page of a table, the sheet name and page number in the footer."""
+    ws.set_landscape()
+    ws.set_paper(paper)
+    ws.fit_to_pages(1, 0)
+    ws.set_margins(left=0.4, right=0.4, top=0.5, bottom=0.6)
+    ws.set_footer("&L&A&RPage &P of &N")
+    if table:
+        ws.repeat_rows(0)
 
 
 def _formats(wb) -> dict:
