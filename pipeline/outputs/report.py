@@ -307,7 +307,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     parts += _brief_section(result, summary, units, paged, anchors)
     parts += _summary_section(result, summary, units)
     parts += _map_section(result, units, map_png)
-    parts += _inventory_section(result.evaluation.inventory, units, paged, anchors)
+    parts += ["<div class='wide'>", *_inventory_section(result.evaluation.inventory, units, paged, anchors), "</div>"]
     parts += _curve_section(pages, pngs, units)
     parts += _roads_section(result, cfg, units, roads, paged, anchors, road_pngs)
     parts += _method_section(method)

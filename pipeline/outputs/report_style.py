@@ -30,6 +30,7 @@ h4 { font-size: 10.5pt; margin: 0.6em 0 0.2em; } .road { border-top: 1px solid #
 h2 { page-break-before: always; break-before: page; }
 nav h2, h2#brief { page-break-before: auto; break-before: auto; }
 h1, h2, h3, h4 { page-break-after: avoid; break-after: avoid; page-break-inside: avoid; break-inside: avoid; }
+.wide { page: wide; } @media print { .wide table { font-size: 7.4pt; } }
 thead { display: table-header-group; } tr, img, .keep, .caution, .card, .sites li {
         page-break-inside: avoid; break-inside: avoid; }
 .facts td:first-child { width: 16em; color: #444; } .small { font-size: 8.5pt; color: #444; }
@@ -56,9 +57,12 @@ def page_css(us: bool) -> str:
     Returns
     -------
     str
-        An ``@page`` rule following :data:`CSS` (CSS Paged Media Level 3, ``size``).
+        ``@page`` rules following :data:`CSS` (CSS Paged Media Level 3, ``size`` and named
+        pages): the sheet upright, and turned (``wide``) for the ranked inventory's many
+        columns.
     """
-    return "@page { size: letter; margin: 14mm; }" if us else "@page { size: A4; margin: 14mm; }"
+    paper = "letter" if us else "A4"
+    return (f"@page {{ size: {paper}; margin: 14mm; }} @page wide {{ size: {paper} landscape; margin: 12mm; }}")
 
 
 LOADED_JS = """window.addEventListener('load', function () {
