@@ -565,7 +565,7 @@ def _road_block(road: pd.Series, anchor: str, cv: pd.DataFrame, rows: pd.DataFra
                 f"</p></section>")
     particulars = [str(road["road_class"]) if isinstance(road["road_class"], str) else "class not given",
                    f"{L(road['length_m']):,.0f} {E} long",
-                   f"judged at {V(road['speed_kmh']):.0f} {S} ({_e(road['speed_basis'])})"
+                   f"judged at {V(road['speed_kmh']):.0f} {S}, {road['speed_basis']}"
                    if pd.notna(road["speed_kmh"]) else "no speed",
                    f"AADT {float(road['aadt']):,.0f}" if pd.notna(road["aadt"]) else "AADT not given",
                    f"{len(cv)} vertical curve(s), {int((cv['verdict'] == 'deficient').sum())} deficient, "
