@@ -205,6 +205,34 @@ def demo_pages():
     return r, report_pages(r, cfg, u), road_pages(r, cfg, u)
 
 
+def test_us_report_speaks_feet_and_mph_and_prints_on_letter(demo_pages, demo_out):
+    """The same network reported in US customary units: the brief and the road index in ft and
+    mph (international foot, 0.3048 m; mile per hour, 1.609344 km/h: NIST SP 811), Letter pages.
+    Figures are left out (placeholders) to keep the test quick."""
+    import json
+
+    from pipeline.core.units import OutputUnits
+    from pipeline.outputs.method import CAUTION_TEXT
+    from pipeline.outputs.report import build_report, report_pages
+    from pipeline.outputs.report_style import page_css
+
+    r, _, _ = demo_pages
+    summary = json.loads((demo_out / "run.json").read_text())
+    cfg = {"output.report_curves": 50, "output.report_road_profiles": 100}
+    u = OutputUnits("us")
+    pages = report_pages(r, cfg, u)
+    text = build_report(r, summary, cfg, u, CAUTION_TEXT, [], pages, [""] * len(pages), "", {})
+    assert page_css(True) in text and page_css(False) not in text
+    d = pd.read_csv(demo_out / "deficiencies.csv")
+    top = d[d["verdict"] == "deficient"].sort_values("rank").iloc[0]
+    first = _between(text, "<h2 id='brief'>").split("</li>")[0]
+    assert f"{top['from_m'] / 0.3048:,.0f}-{top['to_m'] / 0.3048:,.0f} ft" in first
+    assert f"not the {top['speed_kmh'] / 1.609344:.0f} mph judged at" in first
+    assert not re.search(r"\d m\b|km/h", first), first
+    roads = _between(text, "<h2 id='roads'>")
+    assert "ft long" in roads and "mph" in roads and " m long" not in roads and "km/h" not in roads
+
+
 def _spans(ax):
     return [a for a in ax.patches if (a.get_gid() or "").startswith("deficient-")]
 

@@ -2,10 +2,14 @@
 
 ``report.html`` is one self-contained file: figures are PNG images inlined as
 data URIs and the style sheet is inline, so it opens without a network and
-prints to A4 or Letter (each deficient curve starts a new page). Sections:
-summary, overview map, ranked inventory (top 50, the rest in the workbook), one
-page per deficient curve with its long profile, method and criteria set, data
-notes and skipped roads, and the cautions.
+prints to A4 or Letter (each section and each deficient curve starts a new page;
+:mod:`pipeline.outputs.report_style`). Sections: contents, a written brief of the
+worst sites with what the audit and the data can and cannot say, summary,
+overview map, ranked inventory (top 50, the rest in the workbook), one page per
+deficient curve with its long profile, a road-by-road index (each road's long
+profile, curves, deficient stretches and data notes), method and criteria set,
+data notes and skipped roads, and the cautions. Curve pages are reached by
+:func:`curve_anchor`, road sections by :func:`road_anchor`.
 
 The figures are drawn in :mod:`pipeline.outputs.figures` and the field sheets
 written in :mod:`pipeline.outputs.fieldsheets`; their functions are importable
