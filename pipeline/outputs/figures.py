@@ -413,8 +413,8 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
     ax.set_xlim(L(lo), L(hi))
     if len(p):  # room above and below for the curves' labels
         z0, z1 = float(np.nanmin(p["fitted_z_m"])), float(np.nanmax(p["fitted_z_m"]))
-        pad = max(z1 - z0, 1.0) * 0.3
-        ax.set_ylim(L(z0 - pad), L(z1 + pad))
+        span = max(z1 - z0, 1.0)
+        ax.set_ylim(L(z0 - 0.3 * span), L(z1 + 0.4 * span))
     ax.set_xlabel(f"chainage ({E}); hatching: direction of travel")
     ax.set_ylabel(f"elevation ({E})")
     ax.set_title(title)
