@@ -1,13 +1,14 @@
 # sightaudit: two commands do everything (see README.md).
 #   make demo   create .venv, install, run the audit on the bundled sample (out/demo/)
 #   make test   create/update .venv with the test extra, run the test suite
+#   make screenshots   PNGs of the outputs under out/screenshots/, for a reviewer
 
 PYTHON ?= python3
 VENV   := .venv
 BIN    := $(VENV)/bin
 PIP    := $(BIN)/python -m pip --disable-pip-version-check -q
 
-.PHONY: demo test bench bench-accuracy bench-realistic clean
+.PHONY: demo test bench bench-accuracy bench-realistic screenshots clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -34,6 +35,10 @@ bench-accuracy: $(VENV)/.installed
 
 bench-realistic: $(VENV)/.installed
 	$(BIN)/python benchmarks/realistic.py
+
+# pictures of the report, the workbook's Summary and a field sheet, under out/screenshots/
+screenshots: $(VENV)/.installed
+	$(BIN)/python .ci/screenshots.py
 
 clean:
 	rm -rf out .pytest_cache .hypothesis

@@ -20,7 +20,9 @@ from .core.errors import InputError
 from .core.resources import sample_paths
 from .core.version import __version__
 from .evaluate.criteria import get_set, load_sets, template
+from .outputs.method import run_units
 from .runner.checks import check_inputs
+from .runner.evidence import GRADE_BASE_M
 from .runner.network import Progress, worker_pool
 
 DESCRIPTION = (
@@ -238,16 +240,22 @@ def _validate(args) -> int:
     overrides = {key: getattr(args, key, None) for _, key, _, _, _ in RUN_FLAGS}
     cfg = load_config(args.config, overrides)
     info = check_inputs(args.roads, args.ground, cfg)
+    units = run_units(cfg)
     g = info["ground"]
+
+    def length(metres: float, digits: int = 0) -> str:
+        return f"{units.length(metres):.{digits}f} {units.length_label}"
+
     print(f"Roads:   {info['roads_file']}")
     print(f"         {info['roads']} road(s), {info['roads_usable_geometry']} with usable geometry, "
-          f"{info['length_km']:.2f} km in all (shortest {info['length_min_m']:.0f} m, median "
-          f"{info['length_median_m']:.0f} m, longest {info['length_max_m']:.0f} m)")
+          f"{info['length_km'] / units.km_per_distance:.2f} {units.distance_label} in all (shortest "
+          f"{length(info['length_min_m'])}, median {length(info['length_median_m'])}, longest "
+          f"{length(info['length_max_m'])})")
     print(f"         CRS {info['roads_crs']}; lengths measured in {', '.join(info['working_crs'])}")
     print("         speeds: " + ", ".join(f"{k} {v}" for k, v in info["speed"].items()))
     print(f"Ground:  {info['ground_file']}")
     if g["kind"] == "dem":
-        print(f"         DEM, CRS {g['crs']}, cells {g['cell_size'][0]:g} x {g['cell_size'][1]:g}, "
+        print(f"         DEM, CRS {g['crs']}, cells {g['cell_size'][0]:g} x {g['cell_size'][1]:g} (CRS units), "
               f"{g['size'][0]} x {g['size'][1]} cells, nodata {g['nodata']}")
     else:
         print(f"         ground points ({g['mode']}), {g['rows']} rows")
@@ -255,25 +263,25 @@ def _validate(args) -> int:
           f"{info['elevation_unit']}")
     gp = info["grade_pct"]
     if gp:
-        print(f"         grades over 25 m: median {gp['p50']:.1f} %, 90th percentile {gp['p90']:.1f} %, 99th "
-              f"{gp['p99']:.1f} %; {info['steep_pct']:.1f} % of the length steeper than "
+        print(f"         grades over {length(GRADE_BASE_M)}: median {gp['p50']:.1f} %, 90th percentile "
+              f"{gp['p90']:.1f} %, 99th {gp['p99']:.1f} %; {info['steep_pct']:.1f} % of the length steeper than "
               f"{cfg['artefacts.max_road_grade_pct']:g} %")
     dq = info["data_quality"]
     if dq["resolution_m"] is not None:
         own = "DEM cells" if dq["ground_kind"] == "dem" else "ground points every"
-        print(f"What the ground data can support: {own} {dq['spacing_m']:.1f} m; shortest feature resolved "
-              f"about {dq['resolution_m']:.0f} m")
+        print(f"What the ground data can support: {own} {length(dq['spacing_m'], 1)}; shortest feature resolved "
+              f"about {length(dq['resolution_m'])}")
     for sentence in dq["cannot_judge"]:
-        print(f"  - {sentence}")
+        print(f"  - {units.text(sentence)}")
     if info["problems"]:
         print(f"Problems ({len(info['problems'])}):")
         for p in info["problems"]:
-            print(f"  - {p}")
+            print(f"  - {units.text(p)}")
     else:
         print("Problems: none found")
     if info["refusals"]:
         for r in info["refusals"]:
-            print(f"sightaudit: error: {r}", file=sys.stderr)
+            print(f"sightaudit: error: {units.text(r)}", file=sys.stderr)
         print("The inputs cannot be audited as they are: a run would stop (see the error).")
         return 2
     if info["would_skip"] >= info["roads"]:

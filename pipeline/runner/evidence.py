@@ -154,7 +154,11 @@ def settle_elevation_unit(ground, cfg: Config, notes: list[str]) -> dict:
     return info | {"elevation_unit": found, "elevation_unit_source": f"DEM ({where})"}
 
 
-def probe_ground(roads, ground, cfg: Config, step_m: float = 25.0, max_roads: int | None = 300) -> dict:
+# station spacing of the probe that measures grades before a run (m)
+GRADE_BASE_M = 25.0
+
+
+def probe_ground(roads, ground, cfg: Config, step_m: float = GRADE_BASE_M, max_roads: int | None = 300) -> dict:
     """Sample the ground along the roads and measure coverage and grades.
 
     Parameters
