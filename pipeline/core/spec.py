@@ -82,6 +82,8 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
                             "units; 'us' also judges with aashto-2018-us unless criteria.set says otherwise"),
         "us_foot": ("ft", "foot of US customary output: 'ft' (international) or 'us_ft' (US survey)"),
         "report_curves": (50, "deficient curves given a page of their own in report.html (in rank order)"),
+        "report_road_profiles": (100, "roads given a long profile in report.html's road-by-road index (roads with "
+                                      "deficient stretches first; profiles.pdf has every road)"),
         "profiles_pdf": (False, "also write profiles.pdf, one long profile per road for the field team"),
     },
     "criteria": {

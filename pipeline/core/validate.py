@@ -148,7 +148,7 @@ def _range_problem(key: str, value: Any) -> str | None:
         return "must be 'metric' or 'us'"
     elif key == "output.us_foot" and value not in ("ft", "us_ft"):
         return "must be 'ft' (international foot) or 'us_ft' (US survey foot)"
-    elif key == "output.report_curves" and value < 0:
+    elif key in ("output.report_curves", "output.report_road_profiles") and value < 0:
         return "must not be negative"
     elif key == "ground.elevation_unit" and value not in ("m", "ft", "us_ft"):
         return "must be 'm', 'ft' (international foot) or 'us_ft' (US survey foot)"

@@ -67,16 +67,18 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> list[d
     units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
     try:
         pages = report.report_pages(result, cfg, units)
+        roads = report.road_pages(result, cfg, units)
     except Exception as exc:  # the report is lost, the data are not
-        pages = None
+        pages = roads = None
         failures.append(_failure("report.html", exc))
     # drawing in the pool pays when its processes are already running or the pages are many
     warm = result.chunks.get("computed", 0) > 1
-    use_pool = pool is not None and pages is not None and (warm or len(pages) >= 25)
+    use_pool = pool is not None and pages is not None and (warm or len(pages) + len(roads) >= 25)
     futures = [pool.submit(report.curve_png, p["spec"]) for p in pages] if use_pool else None
+    road_futures = [pool.submit(report.road_png, p["spec"]) for p in roads] if use_pool else None
     method = _write_data_outputs(folder, result, summary, cfg, units)
     if pages is not None:
-        _write_report(folder, result, summary, cfg, units, method, pages, futures, failures)
+        _write_report(folder, result, summary, cfg, units, method, pages, futures, failures, roads, road_futures)
     if cfg["output.profiles_pdf"]:
         try:
             report.write_profiles_pdf(folder / "profiles.pdf", result, units)
@@ -110,9 +112,11 @@ def _write_data_outputs(folder: Path, result, summary: dict, cfg, units) -> list
 
 
 def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[tuple[str, str]],
-                  pages: list[dict], futures: list | None, failures: list[dict]) -> None:
-    """The overview map, the curve figures (from ``futures`` where drawn in a pool) and report.html;
-    a figure that fails gives a placeholder, a report that fails is left out."""
+                  pages: list[dict], futures: list | None, failures: list[dict], roads: list[dict],
+                  road_futures: list | None) -> None:
+    """The overview map, the curve figures and the roads' long profiles (from ``futures`` and
+    ``road_futures`` where drawn in a pool) and report.html; a figure that fails gives a
+    placeholder, a report that fails is left out."""
     try:
         map_png = report.png_data_uri(report.network_map(result, result.evaluation.inventory, units))
     except Exception as exc:
@@ -125,8 +129,17 @@ def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[
         except Exception as exc:
             pngs.append(None)  # a placeholder on that page
             failures.append(_failure(f"report.html figure of road {page['road_id']} curve {page['curve_no']}", exc))
+    road_pngs = {}
+    for i, road in enumerate(roads):
+        try:
+            road_pngs[road["road_id"]] = (road_futures[i].result() if road_futures is not None
+                                          else report.road_png(road["spec"]))
+        except Exception as exc:
+            road_pngs[road["road_id"]] = None  # a placeholder in its section
+            failures.append(_failure(f"report.html long profile of road {road['road_id']}", exc))
     try:
-        html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_png)
+        html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_png,
+                                        road_pngs)
         (folder / "report.html").write_text(html_text, encoding="utf-8")
     except Exception as exc:
         (folder / "report.html").unlink(missing_ok=True)

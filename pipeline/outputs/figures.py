@@ -229,24 +229,24 @@ def curve_figure(prof: pd.DataFrame, curve: pd.Series, rows: pd.DataFrame, hcurv
     plt = pyplot()
     worst = rows.loc[rows["rank"].idxmin()]  # the row that ranks first: the direction that matters most
     span = max(float(worst["ssd_required_m"]), 150.0) * 1.1
-    lo = max(min(curve["pvc_m"], worst["from_m"]) - span, prof["chainage_m"].min())
-    hi = min(max(curve["pvt_m"], worst["to_m"]) + span, prof["chainage_m"].max())
+    lo = max(min(curve["pvc_m"], rows["from_m"].min()) - span, prof["chainage_m"].min())
+    hi = min(max(curve["pvt_m"], rows["to_m"].max()) + span, prof["chainage_m"].max())
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
     L, E = units.length, units.length_label
-    fig, ax = plt.subplots(figsize=(10.5, 3.9))
-    fig.subplots_adjust(left=0.07, right=0.70, bottom=0.14, top=0.91)
+    fig, ax = plt.subplots(figsize=(10.5, 4.3))
+    fig.subplots_adjust(left=0.07, right=0.66, bottom=0.13, top=0.92)
     _profile_and_pv_marks(ax, p, curve, L)
     _sight_lines(ax, p, curve, worst, rules, units)
-    _hidden_marks(ax, p, worst, L)
+    _hidden_marks(ax, p, rows, worst, L)
     for h in hcurves.itertuples():
         if h.end_m >= lo and h.start_m <= hi:
             ax.axvspan(L(max(h.start_m, lo)), L(min(h.end_m, hi)), ymin=0, ymax=0.04, color="#4A6FA5", lw=0)
     ax.set_xlim(L(lo), L(hi))
-    ax.set_xlabel(f"chainage ({E}); blue bars along the bottom: horizontal curves")
+    ax.set_xlabel(f"chainage ({E}); blue bars along the bottom: horizontal curves; hatching: direction of travel")
     ax.set_ylabel(f"elevation ({E})")
     ax.set_title(title)
     ax.grid(alpha=0.3)
-    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), framealpha=0.95)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.02), framealpha=0.95, fontsize=8)
     return fig
 
 
@@ -281,6 +281,7 @@ def _sight_lines(ax, p: pd.DataFrame, curve: pd.Series, worst: pd.Series, rules,
     stretch = p[(p["chainage_m"] >= worst["from_m"] - 1e-6) & (p["chainage_m"] <= worst["to_m"] + 1e-6)]
     eye_x = float(stretch.loc[stretch[col].idxmin(), "chainage_m"]) if len(stretch) else float(worst["from_m"])
     avail = float(worst["sight_available_m"])
+    sd = float(curve.get("sight_sd_m", np.nan))
     if curve["kind"] == "crest":
         ez = zfit(eye_x) + rules.eye_height_m
         for dist, style, label in ((avail, "-", f"sight line, available {L(avail):.0f} {E}"),
@@ -289,6 +290,7 @@ def _sight_lines(ax, p: pd.DataFrame, curve: pd.Series, worst: pd.Series, rules,
             ax.plot([L(eye_x), L(ox)], [L(ez), L(zfit(ox) + rules.object_height_m)], style,
                     color="#C2452D", lw=1.5, label=label)
         ax.plot([L(eye_x)], [L(ez)], "o", color="#C2452D", ms=5, label="driver's eye")
+        end_z = zfit(eye_x + sign * avail) + rules.object_height_m
     else:
         g0 = float(np.interp(eye_x, p["chainage_m"], p["grade_pct"])) / 100.0 * sign
         hz = zfit(eye_x) + rules.headlight_height_m
@@ -299,12 +301,62 @@ def _sight_lines(ax, p: pd.DataFrame, curve: pd.Series, worst: pd.Series, rules,
             ax.plot([L(eye_x), L(ox)], [L(hz), L(hz + dist * (g0 + tb))], style, color="#C2452D", lw=1.5,
                     label=label)
         ax.plot([L(eye_x)], [L(hz)], "o", color="#C2452D", ms=5, label="headlight")
+        end_z = hz + avail * (g0 + tb)
+    if np.isfinite(sd) and sd > 0:  # the spread of the available distance (issue 9's uncertainty)
+        ax.errorbar([L(eye_x + sign * avail)], [L(end_z)], xerr=[L(sd)], fmt="none", ecolor="#C2452D", elinewidth=1.2,
+                    capsize=4, label=f"available distance \u00b1 1 sd ({L(sd):.0f} {E})")
 
 
-def _hidden_marks(ax, p: pd.DataFrame, worst: pd.Series, L) -> None:
-    """The driver positions lacking SSD, the road hidden at the required SSD and the hidden hazard."""
-    ax.axvspan(L(min(worst["from_m"], worst["to_m"])), L(max(worst["from_m"], worst["to_m"])) + 1e-9,
-               color="#F4A259", alpha=0.25, lw=0, label="driver positions lacking SSD")
+DIRECTION_HATCH = {"increasing": "////", "decreasing": "\\\\\\\\"}
+"""The hatch of each direction's deficient stretch: rising to the right for increasing chainage,
+falling for decreasing (common practice, no source: two directions told apart without colour)."""
+
+
+def deficient_spans(ax, rows: pd.DataFrame, L, lo: float = -np.inf, hi: float = np.inf,
+                    what: str = "lacking SSD", what_undecided: str = "may lack SSD") -> list:
+    """Shade every deficient stretch of ``rows`` between ``lo`` and ``hi``, each direction with its
+    own hatch and each severity in its colour; one legend entry per direction and severity.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        The axes.
+    rows : pandas.DataFrame
+        Deficient stretches (``direction``, ``from_m``, ``to_m``, ``severity``, ``verdict``).
+    L : callable
+        Metres to the output length unit.
+    lo, hi : float
+        The chainages shown (m); stretches outside are left out.
+    what, what_undecided : str
+        The legend's words for a stretch, and for one of a curve whose verdict is undetermined.
+
+    Returns
+    -------
+    list of matplotlib.patches.Polygon
+        The spans drawn, each with ``gid`` ``deficient-<direction>``.
+    """
+    spans, labelled = [], set()
+    first = rows.assign(_inc=rows["direction"] != "increasing").sort_values(["_inc", "from_m"])
+    for _, d in first.iterrows():
+        a, b = min(d["from_m"], d["to_m"]), max(d["from_m"], d["to_m"])
+        if b < lo or a > hi:
+            continue
+        colour = SEVERITY_COLOURS.get(d["severity"], ROAD_GREY)
+        key = (d["direction"], d["severity"], d.get("verdict"))
+        undecided = d.get("verdict") == "undetermined"
+        label = (f"{what_undecided if undecided else what}, {d['direction']} ({d['severity']})"
+                 if key not in labelled else None)
+        labelled.add(key)
+        spans.append(ax.axvspan(L(max(a, lo)), L(min(b, hi)) + 1e-9, facecolor=colour, alpha=0.35,
+                                hatch=DIRECTION_HATCH.get(d["direction"], "xx"), edgecolor="#5A3A1A",
+                                lw=0, label=label, gid=f"deficient-{d['direction']}"))
+    return spans
+
+
+def _hidden_marks(ax, p: pd.DataFrame, rows: pd.DataFrame, worst: pd.Series, L) -> None:
+    """Every direction's driver positions lacking SSD, the road hidden at the required SSD and
+    the hidden hazard (those of the row ranked first)."""
+    deficient_spans(ax, rows, L)
     if np.isfinite(worst.get("hidden_from_m", np.nan)):
         ax.axvspan(L(worst["hidden_from_m"]), L(worst["hidden_to_m"]), color="#3B1F5C", alpha=0.15, lw=0,
                    label="road hidden at the required SSD")
@@ -317,8 +369,8 @@ def _hidden_marks(ax, p: pd.DataFrame, worst: pd.Series, L) -> None:
 
 # ------------------------------------------------------------------- road figure
 def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, units, title: str, lo: float,
-                hi: float):
-    """A road's long profile between two chainages, for the field sheets.
+                hi: float, size: tuple[float, float] = (11.0, 4.6)):
+    """A road's long profile between two chainages, for the field sheets and the report's road index.
 
     Parameters
     ----------
@@ -327,13 +379,16 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
     curves : pandas.DataFrame
         The road's vertical curves, labelled with kind, number, K and verdict.
     rows : pandas.DataFrame
-        The road's deficient stretches, shaded by severity.
+        The road's deficient stretches, shaded by severity, each direction hatched its own way
+        (:func:`deficient_spans`).
     units : OutputUnits
         The run's output units.
     title : str
         The figure's title.
     lo, hi : float
         The chainages shown (m).
+    size : (float, float), default (11.0, 4.6)
+        The figure's width and height (inches).
 
     Returns
     -------
@@ -342,18 +397,11 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
     plt = pyplot()
     L, E = units.length, units.length_label
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
-    fig, ax = plt.subplots(figsize=(11.0, 4.6))
-    fig.subplots_adjust(left=0.07, right=0.98, bottom=0.12, top=0.92)
+    fig, ax = plt.subplots(figsize=size)
+    fig.subplots_adjust(left=0.07, right=0.75, bottom=0.12 * 4.6 / size[1], top=1 - 0.08 * 4.6 / size[1])
     ax.plot(L(p["chainage_m"]), L(p["ground_z_m"]), ".", ms=2, color="#7A7A7A", label="ground samples")
     ax.plot(L(p["chainage_m"]), L(p["fitted_z_m"]), "-", color="black", lw=1.3, label="recovered alignment")
-    shown = set()
-    for _, d in rows.iterrows():
-        if d["to_m"] < lo or d["from_m"] > hi:
-            continue
-        st = SEVERITY_STYLE[d["severity"]]
-        ax.axvspan(L(d["from_m"]), L(d["to_m"]) + 1e-9, color=st["color"], alpha=0.3, lw=0,
-                   label=f"{d['severity']} deficiency" if d["severity"] not in shown else None)
-        shown.add(d["severity"])
+    deficient_spans(ax, rows, L, lo, hi, what="deficient", what_undecided="undetermined")
     for _, c in curves.iterrows():
         if c["pvt_m"] < lo or c["pvc_m"] > hi:
             continue
@@ -363,9 +411,13 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
                     (L(c["pvi_m"]), L(y)), xytext=(0, 14 if c["kind"] == "crest" else -26),
                     textcoords="offset points", ha="center", fontsize=7.5)
     ax.set_xlim(L(lo), L(hi))
-    ax.set_xlabel(f"chainage ({E})")
+    if len(p):  # room above and below for the curves' labels
+        z0, z1 = float(np.nanmin(p["fitted_z_m"])), float(np.nanmax(p["fitted_z_m"]))
+        span = max(z1 - z0, 1.0)
+        ax.set_ylim(L(z0 - 0.3 * span), L(z1 + 0.4 * span))
+    ax.set_xlabel(f"chainage ({E}); hatching: direction of travel")
     ax.set_ylabel(f"elevation ({E})")
     ax.set_title(title)
     ax.grid(alpha=0.3)
-    ax.legend(loc="best", fontsize=8)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8)
     return fig

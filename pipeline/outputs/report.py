@@ -2,10 +2,14 @@
 
 ``report.html`` is one self-contained file: figures are PNG images inlined as
 data URIs and the style sheet is inline, so it opens without a network and
-prints to A4 or Letter (each deficient curve starts a new page). Sections:
-summary, overview map, ranked inventory (top 50, the rest in the workbook), one
-page per deficient curve with its long profile, method and criteria set, data
-notes and skipped roads, and the cautions.
+prints to A4 or Letter (each section and each deficient curve starts a new page;
+:mod:`pipeline.outputs.report_style`). Sections: contents, a written brief of the
+worst sites with what the audit and the data can and cannot say, summary,
+overview map, ranked inventory (top 50, the rest in the workbook), one page per
+deficient curve with its long profile, a road-by-road index (each road's long
+profile, curves, deficient stretches and data notes), method and criteria set,
+data notes and skipped roads, and the cautions. Curve pages are reached by
+:func:`curve_anchor`, road sections by :func:`road_anchor`.
 
 The figures are drawn in :mod:`pipeline.outputs.figures` and the field sheets
 written in :mod:`pipeline.outputs.fieldsheets`; their functions are importable
@@ -23,10 +27,13 @@ import pandas as pd
 from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, network_map, png_data_uri, road_figure
-from .report_style import CSS, FIGURE_MISSING, LOADED_JS
+from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
+from .tables import curves_table, deficiencies_table
+from .workbook import _site_text, brief_lines, worst_sites
 
-__all__ = ["SEVERITY_STYLE", "build_report", "curve_figure", "curve_png", "data_quality_html", "network_map",
-           "png_data_uri", "report_pages", "road_figure", "write_profiles_pdf"]
+__all__ = ["SEVERITY_STYLE", "build_report", "curve_anchor", "curve_figure", "curve_png", "data_quality_html",
+           "network_map", "png_data_uri", "report_pages", "road_anchor", "road_figure", "road_pages", "road_png",
+           "write_profiles_pdf"]
 
 
 def _e(v) -> str:
@@ -43,21 +50,54 @@ def _num(v, nd=0) -> str:
     return "" if not np.isfinite(f) else f"{f:,.{nd}f}"
 
 
+def _slug(road_id) -> str:
+    """A road id as letters, digits and hyphens (other characters become hyphens)."""
+    return "".join(ch if ch.isascii() and ch.isalnum() else "-" for ch in str(road_id))
+
+
 def curve_anchor(road_id, curve_no) -> str:
     """The id of a curve's page in the report (letters, digits and hyphens only)."""
-    slug = "".join(ch if ch.isalnum() else "-" for ch in str(road_id))
-    return f"curve-{slug}-{int(curve_no)}"
+    return f"curve-{_slug(road_id)}-{int(curve_no)}"
 
 
-TOC = (("summary", "Network summary"), ("data-quality", "What this ground data can support"),
-       ("map", "Network overview"), ("inventory", "Ranked inventory"), ("curves", "Deficient curves"),
-       ("method", "Method and criteria"), ("notes", "Data notes and skipped roads"), ("cautions", "Cautions"))
+def road_anchor(road_id) -> str:
+    """The id of a road's section of the report's road-by-road index (letters, digits and hyphens
+    only).
+
+    Two ids that differ only in characters other than ASCII letters and digits would share a
+    slug; :func:`_road_anchors` tells them apart by a number.
+    """
+    return f"road-{_slug(road_id)}"
 
 
-def _toc() -> str:
-    """The table of contents: a link to every section."""
-    items = "".join(f"<li><a href='#{a}'>{_e(t)}</a></li>" for a, t in TOC)
-    return f"<nav id='contents'><h2>Contents</h2><ol>{items}</ol></nav>"
+def _road_anchors(road_ids) -> dict:
+    """Every road's anchor, unique over the network: :func:`road_anchor`, with ``-2``, ``-3`` ...
+    after a slug already taken."""
+    out, seen = {}, {}
+    for rid in road_ids:
+        a = road_anchor(rid)
+        seen[a] = seen.get(a, 0) + 1
+        out[rid] = a if seen[a] == 1 else f"{a}-{seen[a]}"
+    return out
+
+
+TOC = (("brief", "In brief: the worst sites"), ("data-quality", "What this ground data can support"),
+       ("summary", "Network summary"), ("map", "Network overview"), ("inventory", "Ranked inventory"),
+       ("curves", "Deficient curves"), ("roads", "Road by road"), ("method", "Method and criteria"),
+       ("notes", "Data notes and skipped roads"), ("cautions", "Cautions"))
+
+
+def _toc(roads: list[tuple[str, str, str]] = ()) -> str:
+    """The table of contents: a link to every section, and under "Road by road" one to each road
+    (``roads``: anchor, id, name)."""
+    items = []
+    for a, t in TOC:
+        sub = ""
+        if a == "roads" and roads:
+            sub = "<p class='small toc-roads'>" + " &middot; ".join(
+                f"<a href='#{ra}'>{_e(rid)}{(' ' + _e(name)) if name else ''}</a>" for ra, rid, name in roads) + "</p>"
+        items.append(f"<li><a href='#{a}'>{_e(t)}</a>{sub}</li>")
+    return f"<nav id='contents'><h2>Contents</h2><ol>{''.join(items)}</ol></nav>"
 
 
 def _table(frame: pd.DataFrame, numeric_nd: dict[str, int], raw: tuple[str, ...] = ()) -> str:
@@ -133,6 +173,68 @@ def report_pages(result, cfg, units) -> list[dict]:
     return pages
 
 
+def road_pages(result, cfg, units) -> list[dict]:
+    """The roads whose long profile the road-by-road index shows, each with what its figure needs.
+
+    Roads with a deficient or undetermined stretch come first (by their best rank), then the
+    other evaluated roads in road order; at most ``output.report_road_profiles`` of them (the
+    index says which roads go without one).
+
+    Parameters
+    ----------
+    result : NetworkResult
+        The run's result (road table, profiles, curves and inventory).
+    cfg : Config
+        The run's settings (``output.report_road_profiles``).
+    units : OutputUnits
+        The run's output units.
+
+    Returns
+    -------
+    list of dict
+        ``road_id`` and ``spec``, the keyword arguments of :func:`road_figure` (the whole
+        road in one compact figure).
+    """
+    roads = result.road_table()
+    ev = result.evaluation
+    evaluated = roads[roads["status"] == "evaluated"]
+    best = ev.inventory.groupby("road_id")["rank"].min() if len(ev.inventory) else pd.Series(dtype=float)
+    order = sorted(range(len(evaluated)), key=lambda i: (best.get(evaluated["road_id"].iloc[i], np.inf), i))
+    chosen = [evaluated.iloc[i] for i in order][: int(cfg["output.report_road_profiles"])]
+    profiles = result.road_profiles([r["road_id"] for r in chosen])
+    pages = []
+    for r in chosen:
+        rid = r["road_id"]
+        rp = profiles.get(rid)
+        if rp is None or not len(rp):
+            continue
+        name = r["name"] if isinstance(r["name"], str) else ""
+        rp = rp[["chainage_m", "ground_z_m", "fitted_z_m"]]
+        pages.append({"road_id": rid, "spec": dict(
+            prof=rp, curves=ev.curves[ev.curves["road_id"] == rid], rows=ev.inventory[ev.inventory["road_id"] == rid],
+            units=units, title=f"{rid} {name}: long profile".replace("  ", " "), lo=float(rp["chainage_m"].min()),
+            hi=float(rp["chainage_m"].max()), size=(10.5, 3.2))})
+    return pages
+
+
+def road_png(spec: dict) -> str:
+    """One road's long profile for the road-by-road index as an inline PNG.
+
+    A top-level function, so that a pool of processes can draw the roads side by side.
+
+    Parameters
+    ----------
+    spec : dict
+        The keyword arguments of :func:`road_figure` (a page's ``spec`` from :func:`road_pages`).
+
+    Returns
+    -------
+    str
+        A ``data:image/png;base64,...`` URI.
+    """
+    return png_data_uri(road_figure(**spec), dpi=90)
+
+
 def data_quality_html(dq: dict | None, units) -> str:
     """The report's statement of what the ground data can support.
 
@@ -158,7 +260,8 @@ def data_quality_html(dq: dict | None, units) -> str:
 
 
 def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]],
-                 pages: list[dict] | None = None, pngs: list[str] | None = None, map_png: str | None = None) -> str:
+                 pages: list[dict] | None = None, pngs: list[str] | None = None, map_png: str | None = None,
+                 road_pngs: dict | None = None) -> str:
     """The whole report as one HTML string.
 
     Parameters
@@ -184,6 +287,10 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     map_png : str, optional
         The overview map as a data URI, empty for a placeholder; drawn here when
         not given.
+    road_pngs : dict, optional
+        Each road's long profile (:func:`road_pages`) as a data URI by road id, ``None`` or
+        empty for a placeholder; a road not in it has no profile in the report. Drawn here
+        when not given.
 
     Returns
     -------
@@ -194,12 +301,19 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
         pages = report_pages(result, cfg, units)
     if pngs is None:
         pngs = [curve_png(p["spec"]) for p in pages]
-    parts = _head(result, summary, units, caution) + [_toc()]
+    if road_pngs is None:
+        road_pngs = {p["road_id"]: road_png(p["spec"]) for p in road_pages(result, cfg, units)}
+    roads = result.road_table()
+    anchors = _road_anchors(roads["road_id"])
+    paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
+    parts = _head(result, summary, units, caution)
+    parts.append(_toc([(anchors[r], r, n if isinstance(n, str) else "") for r, n in zip(roads["road_id"], roads["name"])]))
+    parts += _brief_section(result, summary, units, paged, anchors)
     parts += _summary_section(result, summary, units)
     parts += _map_section(result, units, map_png)
-    paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
-    parts += _inventory_section(result.evaluation.inventory, units, paged)
+    parts += ["<div class='wide'>", *_inventory_section(result.evaluation.inventory, units, paged, anchors), "</div>"]
     parts += _curve_section(pages, pngs, units)
+    parts += _roads_section(result, cfg, units, roads, paged, anchors, road_pngs)
     parts += _method_section(method)
     parts += _notes_section(result, summary, units)
     parts += _cautions_section(caution)
@@ -211,7 +325,7 @@ def _head(result, summary: dict, units, caution: str) -> list[str]:
     name = _e(result.criteria.params["name"])
     return [f"<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
             f"<title>Sight distance audit: {name}</title>"
-            f"<style>{CSS}</style><script>{LOADED_JS}</script></head><body>",
+            f"<style>{CSS}{page_css(units.us)}</style><script>{LOADED_JS}</script></head><body>",
             "<h1>Stopping-sight-distance screening audit</h1>",
             f"<p class='small'>sightaudit {summary['version']}, run {summary['started_utc']}; criteria "
             f"{name} ({_e(result.criteria.params['title'])}); units: "
@@ -255,8 +369,60 @@ def _summary_section(result, summary: dict, units) -> list[str]:
     by_class = units.table(ev.summary)
     nd = {c: (2 if {"km", "mi"} & set(c.split("_")) else 0) for c in by_class.columns if c != "road_class"}
     parts.append("<h3>By road class</h3>" + _table(by_class, nd))
+    return parts
+
+
+def _brief_section(result, summary: dict, units, paged: set, anchors: dict) -> list[str]:
+    """The worst sites in plain sentences, and what this audit can and cannot say.
+
+    The counts and the site sentences are the workbook's (:func:`pipeline.outputs.workbook.brief_lines`,
+    :func:`~pipeline.outputs.workbook.worst_sites`), with where each site is, the speed its sight
+    supports and how sure the verdict is added; what the data can and cannot support is
+    :func:`data_quality_html`.
+    """
+    ev = result.evaluation
+    defs = units.table(deficiencies_table(ev.inventory))
+    sheets = {"_summary": units.table(ev.summary), "Deficiencies": defs,
+              "Curves": units.table(curves_table(ev.curves)), "Roads": units.table(result.road_table())}
+    counts = dict(brief_lines(sheets)).get("In brief", "")
+    parts = ["<h2 id='brief'>In brief: the worst sites</h2>", f"<p>{_e(counts)}</p>"]
+    sites = worst_sites(defs)
+    if len(sites):
+        items = []
+        for _, r in sites.iterrows():
+            rid, cno = r["road_id"], int(r["curve_no"])
+            rank = (f"<a href='#{curve_anchor(rid, cno)}'>Rank {int(r['rank'])}</a>" if (rid, cno) in paged
+                    else f"Rank {int(r['rank'])}")
+            road = f" <a class='small' href='#{anchors[rid]}'>(road {_e(rid)})</a>" if rid in anchors else ""
+            items.append(f"<li><b>{rank}</b>: {_e(units.text(_site_text(r)))} {_e(_where_text(r, units))}{road}</li>")
+        parts.append(f"<ol class='sites'>{''.join(items)}</ol>")
+    else:
+        parts.append("<p>No curve on the audited roads is deficient at these criteria.</p>")
+    crit = result.criteria.params
+    parts.append(
+        "<h3>What this audit can and cannot say</h3>"
+        f"<p>It can say where, on the vertical alignment recovered from this ground data, the sight distance a "
+        f"driver has (over crests by day, within the headlight beam on sags at night) falls short of the stopping "
+        f"sight distance {_e(crit['name'])} requires for the speed judged at, in which direction, by how much, "
+        f"how sure that verdict is at this data quality, and which sites to look at first. It cannot say what "
+        f"the ground data cannot resolve (below), nor anything of horizontal sight lines past cuttings, "
+        f"buildings or vegetation; the caution at the top applies to every finding.</p>")
     parts.append(data_quality_html(summary.get("data_quality"), units))
     return parts
+
+
+def _where_text(r: pd.Series, units) -> str:
+    """Where a worst site is and what its sight supports, in words (a row of the deficiency table
+    in the run's units)."""
+    E, S = units.length_label, units.speed_label
+    lo, hi = sorted((float(r[units.column("from_m")]), float(r[units.column("to_m")])))
+    see = "headlights light the road far enough" if r["kind"] == "sag" else "drivers see far enough"
+    text = (f"Over {lo:,.0f}-{hi:,.0f} {E} ({r['direction']} chainage) {see} to stop from "
+            f"{float(r[units.column('supported_speed_kmh')]):.0f} {S}, not the "
+            f"{float(r[units.column('speed_kmh')]):.0f} {S} judged at")
+    if pd.notna(r.get("p_deficient")):
+        text += f"; probability of a shortfall {float(r['p_deficient']):.2f}, {r['confidence']} confidence"
+    return text + "."
 
 
 def _map_section(result, units, map_png: str | None) -> list[str]:
@@ -267,9 +433,10 @@ def _map_section(result, units, map_png: str | None) -> list[str]:
             f"src='{map_png}'>" if map_png else FIGURE_MISSING.format(what="The overview map")]
 
 
-def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None) -> list[str]:
+def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None, anchors: dict | None = None) -> list[str]:
     """The ranked inventory's first 50 stretches, in the run's units; the curve number links to
-    the curve's page where it has one (``paged``: (road_id, curve_no) pairs)."""
+    the curve's page where it has one (``paged``: (road_id, curve_no) pairs), the road to its
+    section of the road-by-road index (``anchors``: anchor by road id)."""
     L, E, V, S = units.length, units.length_label, units.speed, units.speed_label
     n_und = int((inv["verdict"] == "undetermined").sum()) if len(inv) else 0
     parts = ["<h2 id='inventory'>Ranked inventory (top 50)</h2>",
@@ -279,11 +446,11 @@ def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None) -> li
              f"fix. Stretches whose crest hides a hazard come first.</p>"]
     if len(inv):
         top = inv.head(50)
-        paged = paged or set()
+        paged, anchors = paged or set(), anchors or {}
         curve = [(f"<a href='#{curve_anchor(r, c)}'>{int(c)}</a>" if pd.notna(c) and (r, int(c)) in paged
                   else ("" if pd.isna(c) else str(int(c)))) for r, c in zip(top["road_id"], top["curve_no"])]
         shown = pd.DataFrame({
-            "rank": top["rank"], "road": top["road_id"] + " " + top["road_name"].fillna(""),
+            "rank": top["rank"], "road": [_road_link(r, n, anchors) for r, n in zip(top["road_id"], top["road_name"])],
             "curve": curve, "kind": top["kind"], "direction": top["direction"],
             f"from ({E})": L(top["from_m"]), f"to ({E})": L(top["to_m"]),
             f"speed ({S})": V(top["speed_kmh"]), f"supports ({S})": V(top["supported_speed_kmh"]),
@@ -294,16 +461,25 @@ def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None) -> li
             "treatment hint": top["treatment_hint"],
         })
         nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "P(deficient)": 2}
-        parts.append(_table(shown, nd, raw=("curve",)))
+        parts.append(_table(shown, nd, raw=("curve", "road")))
     return parts
+
+
+def _road_link(rid, name, anchors: dict) -> str:
+    """A road's id and name (HTML), linking to its section where it has one."""
+    text = _e(rid) + (f" {_e(name)}" if isinstance(name, str) and name else "")
+    return f"<a href='#{anchors[rid]}'>{text}</a>" if rid in anchors else text
 
 
 def _curve_section(pages: list[dict], pngs: list, units) -> list[str]:
     """One page per deficient curve: its long profile (or a placeholder) and its facts."""
     parts = ["<h2 id='curves'>Deficient curves</h2>"]
     if pages:
-        parts.append(f"<p>{len(pages)} curve(s), in rank order; each long profile shows the driver position with "
-                     f"the least sight distance and the sight line it has against the one it needs.</p>")
+        parts.append(f"<p>{len(pages)} curve(s), in rank order. Each long profile shows the driver position with "
+                     f"the least sight distance and the sight line (crest) or headlight beam (sag) it has, with its "
+                     f"spread of one standard deviation, against the one it needs; the driver positions lacking "
+                     f"SSD are shaded for both directions, hatched one way for increasing chainage and the other "
+                     f"for decreasing.</p>")
         links = ", ".join(f"<a href='#{curve_anchor(p['road_id'], p['curve_no'])}'>{_e(p['road_id'])} curve "
                           f"{int(p['curve_no'])}</a>" for p in pages)
         parts.append(f"<p class='small'>Pages: {links}.</p>")
@@ -322,16 +498,20 @@ def _curve_section(pages: list[dict], pngs: list, units) -> list[str]:
 def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> list[tuple[str, str]]:
     """A curve page's facts (values already HTML): geometry, speeds, verdict, uncertainty, hazard, fit."""
     L, E, V, S = units.length, units.length_label, units.speed, units.speed_label
+    sag = c["kind"] == "sag"
     facts = [
         ("kind, A, L, K", f"{c['kind']}, A = {c['a_pct']:.2f} %, L = {L(c['length_m']):.0f} {E}, "
-                          f"K = {L(c['k']):.1f} (table {L(c['k_required']):.0f}) {E}/%"),
+                          f"K = {L(c['k']):.1f} &plusmn; {L(c['k_sd']):.1f} (table {L(c['k_required']):.0f}) "
+                          f"{E}/%"),
         ("PVC / PVI / PVT", f"{L(c['pvc_m']):,.0f} / {L(c['pvi_m']):,.0f} / {L(c['pvt_m']):,.0f} {E}"),
         ("grades", f"{c['g1_pct']:+.2f} % to {c['g2_pct']:+.2f} %"),
         ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S}, {_e(worst['speed_basis'])}"),
-        ("SSD needed / available", f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} {E} "
-                                   f"({worst['direction']} chainage)"),
-        ("speed the curve supports", f"{V(worst['supported_speed_kmh']):.0f} {S} "
-                                     f"({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
+        ("SSD needed / headlight sight distance" if sag else "SSD needed / sight distance available",
+         f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} &plusmn; "
+         f"{L(c['sight_sd_m']):.0f} {E} ({worst['direction']} chainage"
+         + (", at night, within the headlight beam)" if sag else ", eye to object over the crest)")),
+        ("speed the headlight sight supports" if sag else "speed the sight supports",
+         f"{V(worst['supported_speed_kmh']):.0f} {S} ({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
         ("verdict", f"{_e(c['verdict'])}: probability of a shortfall {c['p_deficient']:.2f}, confidence "
                     f"{_e(c['confidence'])}" + (f"; to settle it: {_e(c['to_settle'])}"
                                                  if isinstance(c.get("to_settle"), str) else "")),
@@ -352,8 +532,101 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
     ]
 
 
+def _roads_section(result, cfg, units, roads: pd.DataFrame, paged: set, anchors: dict,
+                   road_pngs: dict) -> list[str]:
+    """The road-by-road index: for each road its particulars, long profile, vertical curves,
+    deficient stretches (linking to the curve pages) and data notes."""
+    ev = result.evaluation
+    notes = result.data_notes()
+    n_drawn = len(road_pngs)
+    parts = ["<h2 id='roads'>Road by road</h2>",
+             "<p>Each road with its long profile (deficient stretches shaded by severity, hatched one way for "
+             "increasing chainage and the other for decreasing), its vertical curves, its deficient stretches and "
+             "the notes on its data. A curve number links to the curve's page where it has one.</p>"]
+    n_eval = int((roads["status"] == "evaluated").sum())
+    if n_drawn < n_eval:
+        parts.append(f"<p class='caution'>{n_eval - n_drawn} evaluated road(s) are shown without a long profile: "
+                     f"the report draws at most {int(cfg['output.report_road_profiles'])} "
+                     f"(output.report_road_profiles), roads with deficient stretches first; profiles.pdf "
+                     f"(--profiles-pdf) has every road.</p>")
+    for _, road in roads.iterrows():
+        rid = road["road_id"]
+        parts.append(_road_block(road, anchors[rid], ev.curves[ev.curves["road_id"] == rid],
+                                 ev.inventory[ev.inventory["road_id"] == rid], notes[notes["road_id"] == rid],
+                                 units, paged, road_pngs))
+    return parts
+
+
+def _road_block(road: pd.Series, anchor: str, cv: pd.DataFrame, rows: pd.DataFrame, notes: pd.DataFrame, units,
+                paged: set, road_pngs: dict) -> str:
+    """One road's section of the road-by-road index (HTML)."""
+    L, E, V, S = units.length, units.length_label, units.speed, units.speed_label
+    rid = road["road_id"]
+    name = road["name"] if isinstance(road["name"], str) else ""
+    head = f"<h3>{_e(rid)}{(' ' + _e(name)) if name else ''}</h3>"
+    if road["status"] != "evaluated":
+        return (f"<section id='{anchor}' class='road'>{head}<p>Not evaluated: {_e(units.text(str(road['reason'])))}."
+                f"</p></section>")
+    particulars = [str(road["road_class"]) if isinstance(road["road_class"], str) else "class not given",
+                   f"{L(road['length_m']):,.0f} {E} long",
+                   f"judged at {V(road['speed_kmh']):.0f} {S}, {road['speed_basis']}"
+                   if pd.notna(road["speed_kmh"]) else "no speed",
+                   f"AADT {float(road['aadt']):,.0f}" if pd.notna(road["aadt"]) else "AADT not given",
+                   f"{len(cv)} vertical curve(s), {int((cv['verdict'] == 'deficient').sum())} deficient, "
+                   f"{int((cv['verdict'] == 'undetermined').sum())} undetermined"]
+    figure = ""
+    if rid in road_pngs:
+        png = road_pngs[rid]
+        figure = (f"<img class='road-profile' alt='Long profile of {_e(rid)}' src='{png}'>" if png
+                  else FIGURE_MISSING.format(what="This road's long profile"))
+    parts = [f"<section id='{anchor}' class='road'><div class='keep'>{head}"
+             f"<p class='small'>{_e('; '.join(particulars))}.</p>{figure}</div>"]
+
+    def curve_cell(c):
+        c = int(c)
+        return f"<a href='#{curve_anchor(rid, c)}'>{c}</a>" if (rid, c) in paged else str(c)
+
+    if len(cv):
+        shown = pd.DataFrame({
+            "curve": [curve_cell(c) for c in cv["curve_no"]], "kind": cv["kind"],
+            f"PVC ({E})": L(cv["pvc_m"]), f"PVI ({E})": L(cv["pvi_m"]), f"PVT ({E})": L(cv["pvt_m"]),
+            "A (%)": cv["a_pct"],
+            f"K ± 1 sd ({E}/%)": [f"{L(k):.1f} &plusmn; {L(sd):.1f}" if np.isfinite(sd) else f"{L(k):.1f}"
+                                      for k, sd in zip(cv["k"], cv["k_sd"].astype(float))],
+            f"K table ({E}/%)": L(cv["k_required"]),
+            f"sight ({E})": L(cv["sight_available_m"]), f"SSD needed ({E})": L(cv["ssd_required_m"]),
+            "verdict": cv["verdict"], "P(deficient)": cv["p_deficient"], "confidence": cv["confidence"],
+        })
+        nd = {c: 0 for c in shown.columns if "(" in c and not c.startswith("K ")} | {
+            "A (%)": 2, "P(deficient)": 2, f"K table ({E}/%)": 0}
+        parts.append("<h4>Vertical curves</h4>" + _table(shown, nd, raw=("curve", f"K ± 1 sd ({E}/%)")))
+    else:
+        parts.append("<p>No vertical curve was found on this road.</p>")
+    if len(rows):
+        shown = pd.DataFrame({
+            "rank": rows["rank"], "curve": [curve_cell(c) if pd.notna(c) else "" for c in rows["curve_no"]],
+            "kind": rows["kind"], "direction": rows["direction"], f"from ({E})": L(rows["from_m"]),
+            f"to ({E})": L(rows["to_m"]), "severity": rows["severity"], "verdict": rows["verdict"],
+            f"short by ({E})": L(rows["shortfall_m"]), f"supports ({S})": V(rows["supported_speed_kmh"]),
+            "hidden hazard": rows["hidden_hazard"],
+        })
+        parts.append("<h4>Deficient stretches</h4>" + _table(
+            shown, {c: 0 for c in shown.columns if "(" in c} | {"rank": 0}, raw=("curve",)))
+    else:
+        parts.append("<p>No deficient stretch.</p>")
+    if len(notes):
+        items = []
+        for _, n in notes.iterrows():
+            where = (f" ({L(n['from_m']):,.0f}-{L(n['to_m']):,.0f} {E})"
+                     if pd.notna(n["from_m"]) and pd.notna(n["to_m"]) else "")
+            detail = f": {units.text(n['detail'])}" if isinstance(n["detail"], str) and n["detail"] else ""
+            items.append(f"<li>{_e(units.text(n['note']))}{_e(where)}{_e(detail)}</li>")
+        parts.append(f"<h4>Data notes</h4><ul class='small'>{''.join(items)}</ul>")
+    return "".join(parts) + "</section>"
+
+
 def _method_section(method: list[tuple[str, str]]) -> list[str]:
-    return ["<h2 id='method' class='curve'>Method and criteria</h2>",
+    return ["<h2 id='method'>Method and criteria</h2>",
             f"<table class='facts'>{_facts(method)}</table>",
             "<p class='small'>Every input and its SHA-256, the settings used and the time per stage are in "
             "run.json.</p>"]
