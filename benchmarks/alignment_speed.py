@@ -15,7 +15,10 @@ writes them to an ``.npz``; ``--compare FILE`` gives the largest differences in 
 chainage, elevation, curve length and K against a saved run.
 
 ``--scaling 50 100 200 400`` times single profiles of those lengths (km), to show whether the
-cost per km stays constant; ``--profile`` prints the top functions of a cProfile run.
+cost per km stays constant; ``--profile`` prints the top functions of a cProfile run;
+``--solvers`` times the fit with each way of solving the Levenberg-Marquardt step that was
+considered (the one kept, a banded Cholesky, a sparse LU, and ``scipy.optimize.least_squares``
+for every problem) and compares their PVIs with the kept one's.
 
     python benchmarks/alignment_speed.py --save before.npz --profile
     python benchmarks/alignment_speed.py --compare before.npz --scaling 50 100 200 400
@@ -32,12 +35,17 @@ import time
 from pathlib import Path
 
 import numpy as np
+import scipy.sparse as sp
+from scipy.linalg import solveh_banded
+from scipy.sparse.csgraph import reverse_cuthill_mckee
+from scipy.sparse.linalg import spsolve
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from alignment_accuracy import match  # noqa: E402
 from realistic_ground import random_vertical  # noqa: E402
 
+import pipeline.alignment.optimisation as optimisation  # noqa: E402
 from pipeline.alignment.fit import fit_profile  # noqa: E402
 from pipeline.demo.synthetic import random_alignment  # noqa: E402
 
@@ -139,7 +147,8 @@ def compare(name: str, now: dict, before: dict) -> str:
         dX = max(dX, float(np.max(np.abs(now["X"][n] - before["X"][b]))))
         dY = max(dY, float(np.max(np.abs(now["Y"][n] - before["Y"][b]))))
         dL = max(dL, float(np.max(np.abs(now["L"][n] - before["L"][b]))))
-        kn, kb = k_values(now["X"][n], now["Y"][n], now["L"][n]), k_values(before["X"][b], before["Y"][b], before["L"][b])
+        kn = k_values(now["X"][n], now["Y"][n], now["L"][n])
+        kb = k_values(before["X"][b], before["Y"][b], before["L"][b])
         ok = np.isfinite(kn) & np.isfinite(kb)
         if ok.any():
             dK = max(dK, float(np.max(np.abs(kn[ok] - kb[ok]))))
@@ -158,6 +167,47 @@ def scaling(lengths_km, repeats: int, seed: int = 16):
         z = v.z(ch) + rng.normal(0.0, NOISE_M, len(ch))
         cpu, wall, (als, _, _, _) = timed(lambda: fit_profile(ch, z, STEP_M), repeats)
         rows.append((km, sum(len(a.x) - 2 for a in als), cpu / km * 1000, wall / km * 1000))
+    return rows
+
+
+def banded_step(N, d, lam, g):
+    """The damped step by a banded Cholesky: parameters in reverse Cuthill-McKee order, which
+    puts the neighbouring PVIs' chainages, elevations and lengths together."""
+    M = (sp.csr_matrix(N) + sp.diags(lam * d)).tocsr()
+    perm = reverse_cuthill_mckee(M, symmetric_mode=True)
+    C = M[perm][:, perm].tocoo()
+    upper = C.col >= C.row
+    u = int(np.max(C.col[upper] - C.row[upper]))
+    ab = np.zeros((u + 1, M.shape[0]))
+    ab[u + C.row[upper] - C.col[upper], C.col[upper]] = C.data[upper]
+    x = np.empty(len(g))
+    x[perm] = solveh_banded(ab, -g[perm])
+    return x
+
+
+def sparse_lu_step(N, d, lam, g):
+    """The damped step by a sparse LU (SuperLU)."""
+    x = spsolve((sp.csc_matrix(N) + sp.diags(lam * d)).tocsc(), -g)
+    if not np.all(np.isfinite(x)):
+        raise np.linalg.LinAlgError("singular")
+    return x
+
+
+def solvers(items, repeats: int):
+    """Time the fit with each candidate way of solving the Levenberg-Marquardt step."""
+    kept_step, kept_max = optimisation.damped_step, optimisation.LM_MAX_PARAMS
+    variants = {"dense LU (kept)": (kept_step, kept_max), "banded Cholesky": (banded_step, kept_max),
+                "sparse LU": (sparse_lu_step, kept_max), "least_squares trf, all": (kept_step, 0)}
+    rows, ref = [], None
+    for name, (step, most) in variants.items():
+        optimisation.damped_step, optimisation.LM_MAX_PARAMS = step, most
+        try:
+            cpu, wall, fits = timed(lambda: fit_all(items), repeats)
+        finally:
+            optimisation.damped_step, optimisation.LM_MAX_PARAMS = kept_step, kept_max
+        flat = flatten(fits)
+        ref = ref or flat
+        rows.append((name, cpu, wall, compare("vs kept", flat, ref)))
     return rows
 
 
@@ -182,6 +232,7 @@ def main(argv=None):
     ap.add_argument("--compare", help="compare the fitted PVIs with this .npz")
     ap.add_argument("--scaling", type=float, nargs="*", default=(), help="km of single profiles to time")
     ap.add_argument("--profile", action="store_true", help="print the cProfile hot spots")
+    ap.add_argument("--solvers", action="store_true", help="time each way of solving the LM step")
     ap.add_argument("--top", type=int, default=12)
     args = ap.parse_args(argv)
 
@@ -207,6 +258,11 @@ def main(argv=None):
         print("\nscaling (one profile per length): km, PVIs, cpu ms/km, wall ms/km")
         for km, nv, cpu, wall in scaling(args.scaling, repeats=1):
             print(f"{km:5.0f} {nv:6d} {cpu:9.1f} {wall:10.1f}", flush=True)
+    if args.solvers:
+        items = [it for v in sets.values() for it in v]
+        print(f"\nsolvers of the LM step, all {len(items) * ROAD_KM:g} km: cpu s, wall s (median of {args.repeats})")
+        for name, cpu, wall, cmp in solvers(items, args.repeats):
+            print(f"{name:24s} {cpu:6.2f} {wall:6.2f}  {cmp}", flush=True)
     if args.profile:
         print(profile_top([it for items in sets.values() for it in items], args.top))
 
