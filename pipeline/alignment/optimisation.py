@@ -126,36 +126,38 @@ def _tangent_entries(X, G, xs, xcol, ycol, out):
         out[2].append(val[m])
 
 
-def _curve_entries(X, L, G, xs, i, cols, out):
-    """Derivatives of curve ``i``'s correction dG w(x), w = max(0, L/2 - |x - X_i|)^2 / (2 L)."""
+def _curve_entries(X, L, G, xs, cols, out):
+    """Derivatives of every curve's correction dG_i w_i(x), w_i = max(0, L_i/2 - |x - X_i|)^2 / (2 L_i),
+    for all curves at once (one entry per station under a curve and parameter of that curve)."""
     xcol, ycol, lcol = cols
     D = np.diff(X)
-    lo, hi = np.searchsorted(xs, [X[i] - L[i] / 2, X[i] + L[i] / 2])
-    if hi <= lo:
+    i = np.flatnonzero(L[1:-1] > 0) + 1
+    lo = np.searchsorted(xs, X[i] - L[i] / 2)
+    hi = np.searchsorted(xs, X[i] + L[i] / 2)
+    size = np.maximum(hi - lo, 0)
+    if not size.sum():
         return
-    d = xs[lo:hi] - X[i]
-    q = np.maximum(L[i] / 2 - np.abs(d), 0.0)
-    w = q**2 / (2 * L[i])
-    dgi = G[i] - G[i - 1]
-    parts = [
-        (ycol[i - 1], w / D[i - 1]),
-        (ycol[i], -w * (1 / D[i - 1] + 1 / D[i])),
-        (ycol[i + 1], w / D[i]),
-    ]
-    if lcol[i] >= 0:
-        parts.append((lcol[i], dgi * q * (L[i] - q) / (2 * L[i] ** 2)))
-    if xcol[i] >= 0:
-        parts.append((xcol[i], w * (G[i] / D[i] + G[i - 1] / D[i - 1]) + dgi * q * np.sign(d) / L[i]))
-    if xcol[i - 1] >= 0:
-        parts.append((xcol[i - 1], -w * G[i - 1] / D[i - 1]))
-    if xcol[i + 1] >= 0:
-        parts.append((xcol[i + 1], -w * G[i] / D[i]))
-    rr = np.arange(lo, hi)
-    for c, v in parts:
-        if c >= 0:
-            out[0].append(rr)
-            out[1].append(np.full(len(rr), c))
-            out[2].append(v)
+    c = np.repeat(i, size)  # the curve of each entry
+    rr = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size) + np.repeat(lo, size)
+    Lc, Dl, Dr, Gl, Gr = L[c], D[c - 1], D[c], G[c - 1], G[c]
+    d = xs[rr] - X[c]
+    q = np.maximum(Lc / 2 - np.abs(d), 0.0)
+    w = q**2 / (2 * Lc)
+    dgi = Gr - Gl
+    parts = (
+        (ycol[c - 1], w / Dl),
+        (ycol[c], -w * (1 / Dl + 1 / Dr)),
+        (ycol[c + 1], w / Dr),
+        (lcol[c], dgi * q * (Lc - q) / (2 * Lc**2)),
+        (xcol[c], w * (Gr / Dr + Gl / Dl) + dgi * q * np.sign(d) / Lc),
+        (xcol[c - 1], -w * Gl / Dl),
+        (xcol[c + 1], -w * Gr / Dr),
+    )
+    for col, v in parts:
+        m = col >= 0
+        out[0].append(rr[m])
+        out[1].append(col[m])
+        out[2].append(v[m])
 
 
 def _overlap_entries(X, L, n, rho, xcol, lcol, out):
@@ -205,16 +207,14 @@ def _jacobian(X, Y, L, xs, free_x: np.ndarray, free_y: np.ndarray, free_l: np.nd
     cols = _column_maps(nv, free_x, free_y, free_l)
     out: tuple[list, list, list] = ([], [], [])
     _tangent_entries(X, G, xs, cols[0], cols[1], out)
-    for i in range(1, nv - 1):
-        if L[i] > 0:
-            _curve_entries(X, L, G, xs, i, cols, out)
+    _curve_entries(X, L, G, xs, cols, out)
     _overlap_entries(X, L, n, rho, cols[0], cols[2], out)
     rows, cs, vals = out
     ncol = len(free_x) + len(free_y) + len(free_l)
     if dense:
         J = np.zeros((n + nv - 1, ncol))
         for rr, cc, vv in zip(rows, cs, vals):
-            J[rr, cc] += vv  # (row, column) pairs are distinct within a block
+            np.add.at(J, (rr, cc), vv)  # overlapping curves share entries
         return J
     return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cs))),
                          shape=(n + nv - 1, ncol))
