@@ -256,10 +256,10 @@ def damped_step(N, d: np.ndarray, lam: float, g: np.ndarray) -> np.ndarray:
     -----
     LU solve of the small dense matrix (LAPACK gesv through numpy), the library's own. Measured
     with ``benchmarks/alignment_speed.py --solvers`` (60 km of generated profiles, problems of
-    up to 32 parameters and 1,000 stations; CPU s for the whole fit, median of 3): this 1.21 s,
-    a banded Cholesky (``scipy.linalg.solveh_banded``, parameters in reverse Cuthill-McKee
-    order) 1.33 s, a sparse LU (``scipy.sparse.linalg.spsolve``) 1.90 s, all three giving the
-    same PVIs to 2e-11 m. The refinement hands over at most about 32 parameters (blocks of ten
+    up to 32 parameters and 1,000 stations; CPU s for the whole fit, median of 3, two runs on a
+    busy two-core machine): this 1.21-1.26 s, a banded Cholesky (``scipy.linalg.solveh_banded``,
+    parameters in reverse Cuthill-McKee order) 1.33-1.38 s, a sparse LU
+    (``scipy.sparse.linalg.spsolve``) 1.41-1.90 s, all three giving the same PVIs to 2e-11 m. The refinement hands over at most about 32 parameters (blocks of ten
     PVIs), so the O(p^3) of the dense solve stays negligible; problems of more than
     ``LM_MAX_PARAMS`` parameters go to ``scipy.optimize.least_squares`` (:func:`nls_fit`).
     """
@@ -452,9 +452,9 @@ def nls_fit(X, Y, L, xs, zs, free_x, free_y, free_l, max_nfev: int = 40, ftol: f
     prob = _Problem(X, Y, L, xs, zs, *free)
     p0, lb, ub = prob.bounds()
     # scipy.optimize.least_squares ('trf', sparse Jacobian) on every problem was measured too
-    # (benchmarks/alignment_speed.py --solvers): 1.70 s against 1.21 s of CPU for the whole
-    # fit, and it stops elsewhere (curve lengths up to 2.3 m apart), so the small problems keep
-    # this Levenberg-Marquardt
+    # (benchmarks/alignment_speed.py --solvers): 1.70-2.08 s against 1.21-1.26 s of CPU for the
+    # whole fit, and it stops elsewhere (curve lengths up to 2.3 m apart), so the small problems
+    # keep this Levenberg-Marquardt
     if len(p0) <= LM_MAX_PARAMS:
         x_opt, resid = levenberg_marquardt(prob.residuals, prob.jacobian, p0, lb, ub, max_nfev=max_nfev, ftol=ftol)
     else:
