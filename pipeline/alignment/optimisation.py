@@ -259,9 +259,10 @@ def damped_step(N, d: np.ndarray, lam: float, g: np.ndarray) -> np.ndarray:
     up to 32 parameters and 1,000 stations; CPU s for the whole fit, median of 3, two runs on a
     busy two-core machine): this 1.21-1.26 s, a banded Cholesky (``scipy.linalg.solveh_banded``,
     parameters in reverse Cuthill-McKee order) 1.33-1.38 s, a sparse LU
-    (``scipy.sparse.linalg.spsolve``) 1.41-1.90 s, all three giving the same PVIs to 2e-11 m. The refinement hands over at most about 32 parameters (blocks of ten
-    PVIs), so the O(p^3) of the dense solve stays negligible; problems of more than
-    ``LM_MAX_PARAMS`` parameters go to ``scipy.optimize.least_squares`` (:func:`nls_fit`).
+    (``scipy.sparse.linalg.spsolve``) 1.41-1.90 s, all three giving the same PVIs to 2e-11 m.
+    The refinement hands over at most about 32 parameters (blocks of ten PVIs), so the O(p^3)
+    of the dense solve stays negligible; problems of more than ``LM_MAX_PARAMS`` parameters go
+    to ``scipy.optimize.least_squares`` (:func:`nls_fit`).
     """
     if sp.issparse(N):
         N = N.toarray()
