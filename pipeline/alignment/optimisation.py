@@ -30,7 +30,7 @@ import scipy.sparse as sp
 from scipy.optimize import least_squares
 from scipy.sparse.linalg import spsolve
 
-from .model import design_matrix, model_z
+from .model import _under_curves, design_matrix, model_z
 
 LM_MAX_PARAMS = 120  # larger problems go to scipy.optimize.least_squares (nls_fit)
 
@@ -131,14 +131,9 @@ def _curve_entries(X, L, G, xs, cols, out):
     for all curves at once (one entry per station under a curve and parameter of that curve)."""
     xcol, ycol, lcol = cols
     D = np.diff(X)
-    i = np.flatnonzero(L[1:-1] > 0) + 1
-    lo = np.searchsorted(xs, X[i] - L[i] / 2)
-    hi = np.searchsorted(xs, X[i] + L[i] / 2)
-    size = np.maximum(hi - lo, 0)
-    if not size.sum():
+    c, rr = _under_curves(X, L, xs)  # the curve and station of each entry
+    if not len(rr):
         return
-    c = np.repeat(i, size)  # the curve of each entry
-    rr = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size) + np.repeat(lo, size)
     Lc, Dl, Dr, Gl, Gr = L[c], D[c - 1], D[c], G[c - 1], G[c]
     d = xs[rr] - X[c]
     q = np.maximum(Lc / 2 - np.abs(d), 0.0)
