@@ -150,12 +150,38 @@ def model_z(X: np.ndarray, Y: np.ndarray, L: np.ndarray, xs: np.ndarray) -> np.n
     G = (Y[1:] - Y[:-1]) / (X[1:] - X[:-1])
     k = _segment(X, xs)
     z = Y[k] + G[k] * (xs - X[k])
-    dG = np.diff(G)
-    for i in np.flatnonzero(L[1:-1] > 0) + 1:
-        lo, hi = np.searchsorted(xs, [X[i] - L[i] / 2, X[i] + L[i] / 2])
-        q = L[i] / 2 - np.abs(xs[lo:hi] - X[i])
-        z[lo:hi] += dG[i - 1] * np.maximum(q, 0.0) ** 2 / (2 * L[i])
+    c, rr = _under_curves(X, L, xs)
+    if len(rr):
+        q = L[c] / 2 - np.abs(xs[rr] - X[c])
+        corr = (G[c] - G[c - 1]) * np.maximum(q, 0.0) ** 2 / (2 * L[c])
+        if np.all(rr[1:] > rr[:-1]):
+            z[rr] += corr
+        else:  # overlapping curves: add in curve order
+            np.add.at(z, rr, corr)
     return z
+
+
+def _under_curves(X: np.ndarray, L: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each (curve, station) pair with the station between the curve's ends, curve by curve.
+
+    Parameters
+    ----------
+    X, L : ndarray
+        PVI chainages and curve lengths (m).
+    xs : ndarray
+        Station chainages (m), ascending.
+
+    Returns
+    -------
+    (curve, station) : ndarray of int
+        Index of the PVI and of the station of every pair, ordered by curve, then station.
+    """
+    i = np.flatnonzero(L[1:-1] > 0) + 1
+    lo = np.searchsorted(xs, X[i] - L[i] / 2)
+    hi = np.searchsorted(xs, X[i] + L[i] / 2)
+    size = np.maximum(hi - lo, 0)
+    station = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size) + np.repeat(lo, size)
+    return np.repeat(i, size), station
 
 
 @_ascending

@@ -4,8 +4,9 @@
   design matrix (:func:`pipeline.alignment.model.design_matrix`), whose normal equations are
   banded and solved by a sparse factorisation.
 * **Joint refinement** of PVI chainages, elevations and curve lengths: nonlinear least
-  squares with the analytic Jacobian (:func:`_jacobian`), by Levenberg-Marquardt
-  (Marquardt 1963) for small problems and ``scipy.optimize.least_squares`` (trust region
+  squares with the analytic Jacobian (:func:`_jacobian`, a sparse matrix: each PVI's
+  parameters touch only the stations near it), by Levenberg-Marquardt (Marquardt 1963) for
+  small problems and ``scipy.optimize.least_squares`` (trust region
   reflective; Branch, Coleman & Li 1999) for larger ones. The curves are kept within the road
   and apart by bounds and a penalty; overlaps left are closed by shortening both curves
   (:func:`close_overlaps`).
@@ -29,7 +30,9 @@ import scipy.sparse as sp
 from scipy.optimize import least_squares
 from scipy.sparse.linalg import spsolve
 
-from .model import design_matrix, model_z
+from .model import _under_curves, design_matrix, model_z
+
+LM_MAX_PARAMS = 120  # larger problems go to scipy.optimize.least_squares (nls_fit)
 
 
 def solve_elevations(X: np.ndarray, L: np.ndarray, xs: np.ndarray, zs: np.ndarray) -> tuple[np.ndarray, float]:
@@ -123,36 +126,33 @@ def _tangent_entries(X, G, xs, xcol, ycol, out):
         out[2].append(val[m])
 
 
-def _curve_entries(X, L, G, xs, i, cols, out):
-    """Derivatives of curve ``i``'s correction dG w(x), w = max(0, L/2 - |x - X_i|)^2 / (2 L)."""
+def _curve_entries(X, L, G, xs, cols, out):
+    """Derivatives of every curve's correction dG_i w_i(x), w_i = max(0, L_i/2 - |x - X_i|)^2 / (2 L_i),
+    for all curves at once (one entry per station under a curve and parameter of that curve)."""
     xcol, ycol, lcol = cols
     D = np.diff(X)
-    lo, hi = np.searchsorted(xs, [X[i] - L[i] / 2, X[i] + L[i] / 2])
-    if hi <= lo:
+    c, rr = _under_curves(X, L, xs)  # the curve and station of each entry
+    if not len(rr):
         return
-    d = xs[lo:hi] - X[i]
-    q = np.maximum(L[i] / 2 - np.abs(d), 0.0)
-    w = q**2 / (2 * L[i])
-    dgi = G[i] - G[i - 1]
-    parts = [
-        (ycol[i - 1], w / D[i - 1]),
-        (ycol[i], -w * (1 / D[i - 1] + 1 / D[i])),
-        (ycol[i + 1], w / D[i]),
-    ]
-    if lcol[i] >= 0:
-        parts.append((lcol[i], dgi * q * (L[i] - q) / (2 * L[i] ** 2)))
-    if xcol[i] >= 0:
-        parts.append((xcol[i], w * (G[i] / D[i] + G[i - 1] / D[i - 1]) + dgi * q * np.sign(d) / L[i]))
-    if xcol[i - 1] >= 0:
-        parts.append((xcol[i - 1], -w * G[i - 1] / D[i - 1]))
-    if xcol[i + 1] >= 0:
-        parts.append((xcol[i + 1], -w * G[i] / D[i]))
-    rr = np.arange(lo, hi)
-    for c, v in parts:
-        if c >= 0:
-            out[0].append(rr)
-            out[1].append(np.full(len(rr), c))
-            out[2].append(v)
+    Lc, Dl, Dr, Gl, Gr = L[c], D[c - 1], D[c], G[c - 1], G[c]
+    d = xs[rr] - X[c]
+    q = np.maximum(Lc / 2 - np.abs(d), 0.0)
+    w = q**2 / (2 * Lc)
+    dgi = Gr - Gl
+    parts = (
+        (ycol[c - 1], w / Dl),
+        (ycol[c], -w * (1 / Dl + 1 / Dr)),
+        (ycol[c + 1], w / Dr),
+        (lcol[c], dgi * q * (Lc - q) / (2 * Lc**2)),
+        (xcol[c], w * (Gr / Dr + Gl / Dl) + dgi * q * np.sign(d) / Lc),
+        (xcol[c - 1], -w * Gl / Dl),
+        (xcol[c + 1], -w * Gr / Dr),
+    )
+    for col, v in parts:
+        m = col >= 0
+        out[0].append(rr[m])
+        out[1].append(col[m])
+        out[2].append(v[m])
 
 
 def _overlap_entries(X, L, n, rho, xcol, lcol, out):
@@ -202,16 +202,14 @@ def _jacobian(X, Y, L, xs, free_x: np.ndarray, free_y: np.ndarray, free_l: np.nd
     cols = _column_maps(nv, free_x, free_y, free_l)
     out: tuple[list, list, list] = ([], [], [])
     _tangent_entries(X, G, xs, cols[0], cols[1], out)
-    for i in range(1, nv - 1):
-        if L[i] > 0:
-            _curve_entries(X, L, G, xs, i, cols, out)
+    _curve_entries(X, L, G, xs, cols, out)
     _overlap_entries(X, L, n, rho, cols[0], cols[2], out)
     rows, cs, vals = out
     ncol = len(free_x) + len(free_y) + len(free_l)
     if dense:
         J = np.zeros((n + nv - 1, ncol))
         for rr, cc, vv in zip(rows, cs, vals):
-            J[rr, cc] += vv  # (row, column) pairs are distinct within a block
+            np.add.at(J, (rr, cc), vv)  # overlapping curves share entries
         return J
     return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cs))),
                          shape=(n + nv - 1, ncol))
@@ -229,12 +227,49 @@ class _LMState:
     nfev: int = 1
 
 
+def damped_step(N, d: np.ndarray, lam: float, g: np.ndarray) -> np.ndarray:
+    """Levenberg-Marquardt step: the solution of (N + lambda diag(d)) dp = -g.
+
+    Parameters
+    ----------
+    N : scipy.sparse matrix or ndarray
+        Normal matrix J^T J (parameters x parameters; dimensionless, as chainages, elevations
+        and lengths are all in metres).
+    d : ndarray
+        Marquardt's scaling, the diagonal of N (floored at 1e-12).
+    lam : float
+        Damping (dimensionless).
+    g : ndarray
+        Gradient J^T r (m).
+
+    Returns
+    -------
+    ndarray
+        The step dp (m); raises ``numpy.linalg.LinAlgError`` when the damped matrix is singular.
+
+    Notes
+    -----
+    LU solve of the small dense matrix (LAPACK gesv through numpy), the library's own. Measured
+    with ``benchmarks/alignment_speed.py --solvers`` (60 km of generated profiles, problems of
+    up to 32 parameters and 1,000 stations; CPU s for the whole fit, median of 3, two runs on a
+    busy two-core machine): this 1.21-1.26 s, a banded Cholesky (``scipy.linalg.solveh_banded``,
+    parameters in reverse Cuthill-McKee order) 1.33-1.38 s, a sparse LU
+    (``scipy.sparse.linalg.spsolve``) 1.41-1.90 s, all three giving the same PVIs to 2e-11 m.
+    The refinement hands over at most about 32 parameters (blocks of ten PVIs), so the O(p^3)
+    of the dense solve stays negligible; problems of more than ``LM_MAX_PARAMS`` parameters go
+    to ``scipy.optimize.least_squares`` (:func:`nls_fit`).
+    """
+    if sp.issparse(N):
+        N = N.toarray()
+    return np.linalg.solve(N + lam * np.diag(d), -g)
+
+
 def _lm_iteration(fun, st: _LMState, A, g, lb, ub, max_nfev: int, ftol: float, xtol: float):
     """Raise the damping until a step lowers the cost. Returns ``(improved, converged)``."""
-    d = np.maximum(np.diag(A), 1e-12)
+    d = np.maximum(A.diagonal(), 1e-12)
     while st.nfev < max_nfev:
         try:
-            step = np.linalg.solve(A + st.lam * np.diag(d), -g)
+            step = damped_step(A, d, st.lam, g)
         except np.linalg.LinAlgError:
             st.lam *= 10.0
             continue
@@ -254,15 +289,45 @@ def _lm_iteration(fun, st: _LMState, A, g, lb, ub, max_nfev: int, ftol: float, x
     return False, False
 
 
+def normal_equations(J, r: np.ndarray):
+    """J^T J and J^T r of a Jacobian, sparse or dense.
+
+    Parameters
+    ----------
+    J : scipy.sparse matrix or ndarray
+        Jacobian of the residuals, (residuals x parameters).
+    r : ndarray
+        Residuals (m).
+
+    Returns
+    -------
+    (N, g)
+        The normal matrix (parameters x parameters; CSR when ``J`` is sparse) and the gradient
+        J^T r (m).
+
+    Notes
+    -----
+    With a sparse J the products cost in proportion to its non-zeros (a station touches at
+    most seven parameters, ten under two overlapping curves) and never call the BLAS. The dense
+    ``J.T @ J`` of 1,000 x 32 used before went to the BLAS, which splits it over its threads:
+    in a process with the default BLAS threads (a run in one process) the fit of
+    ``benchmarks/alignment_speed.py`` cost 40-56 ms of CPU per km, against 14-18 ms with these
+    sparse products (the same as before with one BLAS thread, as in the worker processes).
+    """
+    if sp.issparse(J):
+        return (J.T @ J).tocsr(), np.asarray(J.T @ r).ravel()
+    return J.T @ J, J.T @ r
+
+
 def levenberg_marquardt(fun, jac, p0, lb, ub, max_nfev: int = 40, ftol: float = 1e-9, xtol: float = 1e-10):
-    """Least squares by Levenberg-Marquardt for the small dense problems of the alignment.
+    """Least squares by Levenberg-Marquardt for the small problems of the alignment.
 
     Parameters
     ----------
     fun : callable
         ``fun(p)`` gives the residuals (m).
     jac : callable
-        ``jac(p)`` gives their Jacobian, dense.
+        ``jac(p)`` gives their Jacobian, sparse (any ``scipy.sparse`` matrix) or dense.
     p0, lb, ub : ndarray
         Start and bounds of the parameters (m).
     max_nfev : int
@@ -281,7 +346,8 @@ def levenberg_marquardt(fun, jac, p0, lb, ub, max_nfev: int = 40, ftol: float = 
     Notes
     -----
     Step (J^T J + lambda diag(J^T J)) dp = -J^T r, Marquardt's diagonal scaling; steps clipped
-    to the bounds; lambda divided by 3 after a success, multiplied by 4 after a failure.
+    to the bounds; lambda divided by 3 after a success, multiplied by 4 after a failure. The
+    normal equations come from :func:`normal_equations` and are solved by :func:`damped_step`.
 
     References
     ----------
@@ -291,8 +357,8 @@ def levenberg_marquardt(fun, jac, p0, lb, ub, max_nfev: int = 40, ftol: float = 
     r = fun(p)
     st = _LMState(p=p, r=r, cost=float(r @ r))
     while st.nfev < max_nfev:
-        J = jac(st.p)
-        improved, done = _lm_iteration(fun, st, J.T @ J, J.T @ st.r, lb, ub, max_nfev, ftol, xtol)
+        N, g = normal_equations(jac(st.p), st.r)
+        improved, done = _lm_iteration(fun, st, N, g, lb, ub, max_nfev, ftol, xtol)
         if not improved or done:
             break
     return st.p, st.r
@@ -300,14 +366,13 @@ def levenberg_marquardt(fun, jac, p0, lb, ub, max_nfev: int = 40, ftol: float = 
 
 # ------------------------------------------------------ nonlinear least squares
 class _Problem:
-    """Residuals and Jacobian of the alignment as functions of its free parameters."""
+    """Residuals and (sparse) Jacobian of the alignment as functions of its free parameters."""
 
     def __init__(self, X, Y, L, xs, zs, free_x, free_y, free_l):
         self.X, self.Y, self.L = X, Y, L
         self.xs, self.zs = xs, zs
         self.free = (free_x, free_y, free_l)
         self.rho = 10.0 * np.sqrt(max(len(xs), 1))
-        self.dense = False
 
     def bounds(self):
         """Start, lower and upper bounds: each free chainage may move up to 40 % of the way to
@@ -342,7 +407,7 @@ class _Problem:
     def jacobian(self, p):
         """:func:`_jacobian` at parameters ``p``."""
         Xp, Yp, Lp = self.unpack(p)
-        return _jacobian(Xp, Yp, Lp, self.xs, *self.free, self.rho, dense=self.dense)
+        return _jacobian(Xp, Yp, Lp, self.xs, *self.free, self.rho)
 
 
 def nls_fit(X, Y, L, xs, zs, free_x, free_y, free_l, max_nfev: int = 40, ftol: float = 1e-9):
@@ -372,7 +437,7 @@ def nls_fit(X, Y, L, xs, zs, free_x, free_y, free_l, max_nfev: int = 40, ftol: f
     Minimises sum (z(x_j) - z_j)^2 + rho^2 sum max(0, L_i/2 + L_{i+1}/2 - D_i)^2 with
     rho = 10 sqrt(n); up to 120 parameters by :func:`levenberg_marquardt`, beyond by
     ``scipy.optimize.least_squares`` (trust region reflective, LSMR), both with the analytic
-    Jacobian.
+    Jacobian as a sparse matrix, so no product ever costs more than the Jacobian's non-zeros.
 
     References
     ----------
@@ -382,8 +447,11 @@ def nls_fit(X, Y, L, xs, zs, free_x, free_y, free_l, max_nfev: int = 40, ftol: f
     free = tuple(np.asarray(v, dtype=int) for v in (free_x, free_y, free_l))
     prob = _Problem(X, Y, L, xs, zs, *free)
     p0, lb, ub = prob.bounds()
-    prob.dense = len(p0) <= 120
-    if prob.dense:
+    # scipy.optimize.least_squares ('trf', sparse Jacobian) on every problem was measured too
+    # (benchmarks/alignment_speed.py --solvers): 1.70-2.08 s against 1.21-1.26 s of CPU for the
+    # whole fit, and it stops elsewhere (curve lengths up to 2.3 m apart), so the small problems
+    # keep this Levenberg-Marquardt
+    if len(p0) <= LM_MAX_PARAMS:
         x_opt, resid = levenberg_marquardt(prob.residuals, prob.jacobian, p0, lb, ub, max_nfev=max_nfev, ftol=ftol)
     else:
         res = least_squares(prob.residuals, p0, jac=prob.jacobian, bounds=(lb, ub), method="trf", x_scale="jac",
