@@ -111,12 +111,14 @@ def _write_data_outputs(folder: Path, result, summary: dict, cfg, units) -> list
 
 def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[tuple[str, str]],
                   pages: list[dict], futures: list | None, failures: list[dict]) -> None:
-    """The overview map, the curve figures (from ``futures`` where drawn in a pool) and report.html;
-    a figure that fails gives a placeholder, a report that fails is left out."""
+    """The overview map (inline SVG, its labels linked to the curve pages), the curve figures (from
+    ``futures`` where drawn in a pool) and report.html; a figure that fails gives a placeholder, a
+    report that fails is left out."""
     try:
-        map_png = report.png_data_uri(report.network_map(result, result.evaluation.inventory, units))
+        paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
+        map_svg = report.network_map_svg(result, result.evaluation.inventory, units, paged)
     except Exception as exc:
-        map_png = ""  # a placeholder in the report
+        map_svg = ""  # a placeholder in the report
         failures.append(_failure("report.html overview map", exc))
     pngs = []
     for i, page in enumerate(pages):
@@ -126,7 +128,7 @@ def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[
             pngs.append(None)  # a placeholder on that page
             failures.append(_failure(f"report.html figure of road {page['road_id']} curve {page['curve_no']}", exc))
     try:
-        html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_png)
+        html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_svg)
         (folder / "report.html").write_text(html_text, encoding="utf-8")
     except Exception as exc:
         (folder / "report.html").unlink(missing_ok=True)

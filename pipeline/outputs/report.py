@@ -22,10 +22,11 @@ import pandas as pd
 
 from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
-from .figures import SEVERITY_STYLE, curve_figure, curve_png, network_map, png_data_uri, road_figure
+from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
+from .mapview import network_map_svg
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS
 
-__all__ = ["SEVERITY_STYLE", "build_report", "curve_figure", "curve_png", "data_quality_html", "network_map",
+__all__ = ["SEVERITY_STYLE", "build_report", "curve_figure", "curve_png", "data_quality_html", "network_map_svg",
            "png_data_uri", "report_pages", "road_figure", "write_profiles_pdf"]
 
 
@@ -259,12 +260,14 @@ def _summary_section(result, summary: dict, units) -> list[str]:
     return parts
 
 
-def _map_section(result, units, map_png: str | None) -> list[str]:
-    """The overview map, drawn here unless given; a placeholder where it could not be drawn."""
-    map_png = png_data_uri(network_map(result, result.evaluation.inventory, units)) if map_png is None else map_png
-    return ["<h2 id='map'>Network overview</h2>",
-            f"<img alt='Map of the audited roads with deficient stretches coloured by severity' "
-            f"src='{map_png}'>" if map_png else FIGURE_MISSING.format(what="The overview map")]
+def _map_section(result, units, map_svg: str | None) -> list[str]:
+    """The overview map, an inline SVG (:mod:`pipeline.outputs.mapview`), drawn here unless
+    given (then without links to the curve pages); a placeholder where it could not be drawn."""
+    if map_svg is None:
+        map_svg = network_map_svg(result, result.evaluation.inventory, units)
+    return ["<h2 id='map' style='break-after: avoid'>Network overview</h2>",
+            f"<figure class='map' style='margin: 0; break-inside: avoid'>{map_svg}</figure>" if map_svg
+            else FIGURE_MISSING.format(what="The overview map")]
 
 
 def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None) -> list[str]:
