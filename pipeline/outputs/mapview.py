@@ -72,7 +72,8 @@ class MapStretch:
     """A deficient or undetermined stretch as drawn.
 
     ``xy``: the stretch's vertices (m); ``anchor``: its middle (m); ``title``: the hover text;
-    ``href``: the curve page's fragment (``#...``) or empty.
+    ``href``: the curve page's fragment (``#...``) or empty; ``where``: road and chainage range
+    in a few words, for a label that finds no room on the drawing.
     """
 
     rank: int
@@ -83,6 +84,7 @@ class MapStretch:
     anchor: tuple[float, float]
     title: str
     href: str = ""
+    where: str = ""
 
 
 def network_map_svg(result, inventory, units, paged: set | None = None) -> str:
@@ -152,7 +154,9 @@ def map_inputs(table, inventory, units, paged: set) -> tuple[list[MapRoad], list
         href = f"#{curve_anchor(d.road_id, cno)}" if cno is not None and (d.road_id, cno) in paged else ""
         stretches.append(MapStretch(int(d.rank), str(d.road_id), str(d.severity), str(d.verdict),
                                     poly.cut(d.from_m, d.to_m), (float(ax), float(ay)),
-                                    hover_text(d, lines[d.road_id][1], units, bool(href)), href))
+                                    hover_text(d, lines[d.road_id][1], units, bool(href)), href,
+                                    f"{lines[d.road_id][1]} {units.length(d.from_m):,.0f}-"
+                                    f"{units.length(d.to_m):,.0f} {units.length_label}"))
     return roads, stretches
 
 
@@ -211,10 +215,13 @@ def inside(cands: np.ndarray, bounds) -> np.ndarray:
             & (cands[:, 2] <= bounds[2]) & (cands[:, 3] <= bounds[3]))
 
 
-def _rings(diag: float):
+LEADER_MAX = 240.0  # px; a label that would sit further from its marker goes under the drawing
+
+
+def _rings(reach: float):
     """Candidate radii (px) beyond the first ring, growing by about a third each step."""
     r = 20.0
-    while r < diag:
+    while r <= reach:
         yield r
         r = r * 1.3 + 4.0
 
@@ -235,7 +242,7 @@ def label_candidates(anchor, size, radius: float | None) -> np.ndarray:
                    (0, d + h / 2)]
         c = np.asarray(centres, dtype=float)
     else:
-        n = int(np.clip(2 * math.pi * radius / 12.0, 12, 120))
+        n = int(np.clip(2 * math.pi * radius / 16.0, 12, 96))
         t = np.arange(n) * 2 * math.pi / n
         c = np.column_stack([radius * np.cos(t) + np.sign(np.cos(t)) * w / 2, -radius * np.sin(t)])
     c = c + np.asarray([x, y])
@@ -271,9 +278,9 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, 
     taken = np.asarray(obstacles, dtype=float).reshape(-1, 4)
     boxes = np.full((len(anchors), 4), np.nan)
     leader = np.zeros(len(anchors), dtype=bool)
-    diag = math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1])
+    reach = min(math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1]), LEADER_MAX)
     for i, (anchor, size) in enumerate(zip(anchors, sizes)):
-        for radius in [None, *_rings(diag)]:
+        for radius in [None, *_rings(reach)]:
             cands = label_candidates(anchor, size, radius)
             ok = inside(cands, bounds)
             if ok.any():
@@ -589,16 +596,14 @@ def oriented_overlaps(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> 
     """
     if not len(others):
         return False
-    o = others
-    ua, va = box[4:6], np.array([-box[5], box[4]])
-    ub = o[:, 4:6]
-    vb = np.column_stack([-o[:, 5], o[:, 4]])
-    d = o[:, :2] - box[:2]
-    apart = np.zeros(len(o), dtype=bool)
-    for axis in (np.broadcast_to(ua, ub.shape), np.broadcast_to(va, ub.shape), ub, vb):
-        ra = (box[2] + pad) * np.abs((axis * ua).sum(1)) + (box[3] + pad) * np.abs((axis * va).sum(1))
-        rb = o[:, 2] * np.abs((axis * ub).sum(1)) + o[:, 3] * np.abs((axis * vb).sum(1))
-        apart |= np.abs((d * axis).sum(1)) >= ra + rb
+    hwa, hha, ux, uy = box[2] + pad, box[3] + pad, box[4], box[5]
+    dx, dy = others[:, 0] - box[0], others[:, 1] - box[1]
+    hwb, hhb, ox, oy = others[:, 2], others[:, 3], others[:, 4], others[:, 5]
+    c, sn = np.abs(ux * ox + uy * oy), np.abs(uy * ox - ux * oy)  # |cos|, |sin| of the angle between them
+    apart = ((np.abs(dx * ux + dy * uy) >= hwa + hwb * c + hhb * sn)
+             | (np.abs(dy * ux - dx * uy) >= hha + hwb * sn + hhb * c)
+             | (np.abs(dx * ox + dy * oy) >= hwb + hwa * c + hha * sn)
+             | (np.abs(dy * ox - dx * oy) >= hhb + hwa * sn + hha * c))
     return bool((~apart).any())
 
 
@@ -608,14 +613,17 @@ def place_road_names(lines: dict, taken: np.ndarray, bounds) -> tuple[list[str],
     bounding box) and the roads left unnamed. Names are tested as the rotated rectangles
     they are against what is taken."""
     out, missed = [], []
-    solid = as_oriented(taken)
+    solid, hull = as_oriented(taken), np.asarray(taken, dtype=float).reshape(-1, 4)
     for rid in sorted(lines, key=lambda r: -max(_length(p) for p in lines[r][1])):
         name, parts = lines[rid]
         xy = max(parts, key=_length)
         spot = None
         for text in dict.fromkeys([name, rid]):
             for x, y, ang, box, obb in road_label_candidates(xy, text):
-                if inside(box[None], bounds)[0] and not oriented_overlaps(obb, solid):
+                if not inside(box[None], bounds)[0]:
+                    continue
+                near = _hits(box, hull)  # only what the name's bounding box meets can overlap it
+                if not near.any() or not oriented_overlaps(obb, solid[near]):
                     spot = (text, x, y, ang, box, obb)
                     break
             if spot:
@@ -625,13 +633,19 @@ def place_road_names(lines: dict, taken: np.ndarray, bounds) -> tuple[list[str],
             continue
         text, x, y, ang, box, obb = spot
         taken = np.vstack([taken, box])
-        solid = np.vstack([solid, obb])
+        solid, hull = np.vstack([solid, obb]), np.vstack([hull, box])
         out.append(f"<text class='road-label' data-road='{_a(rid)}' data-box='{' '.join(f'{v:.3f}' for v in obb)}' "
                    f"x='{x:.1f}' y='{y:.1f}' transform='rotate({ang:.1f} {x:.1f} {y:.1f})' text-anchor='middle' "
                    f"dominant-baseline='central' font-size='{ROAD_FONT}' fill='#333333' stroke='white' "
                    f"stroke-width='3' paint-order='stroke' textLength='{text_width(text, ROAD_FONT):.1f}' "
                    f"lengthAdjust='spacingAndGlyphs'>{_a(text)}<title>{_a(name)} ({_a(rid)})</title></text>")
     return out, taken, missed
+
+
+def _hits(box: np.ndarray, boxes: np.ndarray, pad: float = 1.0) -> np.ndarray:
+    """Which of ``boxes`` (m, 4) meet ``box`` (4,) grown by ``pad``."""
+    return ((box[0] - pad < boxes[:, 2]) & (boxes[:, 0] < box[2] + pad)
+            & (box[1] - pad < boxes[:, 3]) & (boxes[:, 1] < box[3] + pad))
 
 
 def _length(xy: np.ndarray) -> float:
@@ -764,18 +778,41 @@ def _rank_labels(stretches, pts, taken, frame):
     return leaders, marks, labels, np.vstack([taken, placed]), over
 
 
+OVERFLOW_LEADERS = 12  # up to this many labels without room get boxes and leader lines; more are listed
+
+
 def _overflow_row(over: list, width: float, y: float) -> tuple[str, float]:
-    """Labels with no free spot on the drawing, in rows under it, each with a leader line to
-    its marker; returns the SVG and the height used."""
+    """Labels with no free spot on the drawing, under it; returns the SVG and the height used.
+
+    A few get their label box in a row, each with a leader line to its marker; more would
+    draw a thicket of lines, so they are listed instead by rank, road and chainage range,
+    each entry with its hover text and link.
+    """
     x, parts = 4.0, []
-    for st, p in over:
-        w, h = rank_label_size(st.rank)
+    if len(over) <= OVERFLOW_LEADERS:
+        for st, p in over:
+            w, h = rank_label_size(st.rank)
+            if x + w > width - 4:
+                x, y = 4.0, y + h + 4
+            box = (x, y, x + w, y + h)
+            parts += [_leader(p, box), _rank_label(st, box)]
+            x += w + 4
+        return "".join(parts), y + RANK_FONT + 9.0
+    y += 12.0
+    parts.append(f"<text x='4' y='{y:.1f}' font-size='10' font-style='italic' fill='{INK}'>{len(over)} stretches "
+                 f"without room for a label on the drawing (their markers are there; hover for details):</text>")
+    y += 14.0
+    for st, _ in over:
+        text = f"#{st.rank} {st.where};"
+        w = text_width(text, 10) + 8
         if x + w > width - 4:
-            x, y = 4.0, y + h + 4
-        box = (x, y, x + w, y + h)
-        parts += [_leader(p, box), _rank_label(st, box)]
-        x += w + 4
-    return "".join(parts), y + RANK_FONT + 9.0
+            x, y = 4.0, y + 14
+        entry = (f"<text class='rank-entry' data-rank='{st.rank}' x='{x:.1f}' y='{y:.1f}' font-size='10' "
+                 f"fill='{INK}' textLength='{w - 8:.1f}' lengthAdjust='spacingAndGlyphs'>{_a(text)}"
+                 f"<title>{_a(st.title)}</title></text>")
+        parts.append(f"<a href='{_a(st.href)}'>{entry}</a>" if st.href else entry)
+        x += w
+    return "".join(parts), y + 8.0
 
 
 def _inset_outlines(insets: list[Panel], view: View, taken: np.ndarray) -> tuple[list[str], list[str], np.ndarray]:
