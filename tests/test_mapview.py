@@ -66,6 +66,13 @@ def _no_two_overlap(boxes) -> bool:
     return all(polys[i].intersection(polys[j]).area == 0 for i in range(len(polys)) for j in range(i))
 
 
+def _rotated(data_box: str):
+    """A road name's rectangle from its ``data-box`` (centre, half sizes, direction)."""
+    cx, cy, hw, hh, ux, uy = (float(v) for v in data_box.split())
+    c, u, v = np.array([cx, cy]), np.array([ux, uy]), np.array([-uy, ux])
+    return shapely.Polygon([c + sx * hw * u + sy * hh * v for sx, sy in ((-1, -1), (1, -1), (1, 1), (-1, 1))])
+
+
 def _luminance(hex_colour: str) -> float:
     """Relative luminance, W3C WCAG 2.1 definition."""
     rgb = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
@@ -114,6 +121,28 @@ def test_many_labels_at_one_spot_never_overlap():
         assert not any(shapely.box(*b).intersects(m) for m in markers)
 
 
+def test_labels_without_room_are_listed_under_the_drawing():
+    """Two hundred stretches on 200 m of one road cannot all be labelled beside their markers:
+    those without room are listed under the drawing, each rank exactly once overall, the
+    listed entries one per text element and none overlapping another (boxes from their fitted
+    text length, shapely as reference); common practice, no source."""
+    table = _roads({"R1": [(0, 0), (3000, 0)], "R2": [(1500, -1500), (1500, 1500)]}, {"R1": "Long Lane"})
+    inv = _inventory([(k, "R1", 1400.0 + k, 1420.0 + k, "severe", "deficient", 1) for k in range(1, 201)])
+    _, root = _svg(table, inv)
+    panel = _panels(root)[0]
+    boxes = _label_boxes(panel)
+    entries = [t for t in panel.iter(f"{NS}text") if t.get("class") == "rank-entry"]
+    assert entries and boxes
+    listed = [int(t.get("data-rank")) for t in entries]
+    assert sorted(list(boxes) + listed) == list(range(1, 201))
+    assert all(t.text.startswith(f"#{r} Long Lane ") for t, r in zip(entries, listed))
+    rows = [(float(t.get("x")), float(t.get("y")) - 10, float(t.get("x")) + float(t.get("textLength")),
+             float(t.get("y"))) for t in entries]
+    assert _no_two_overlap(rows)
+    frame = next(r for r in panel.iter(f"{NS}rect") if r.get("class") == "frame")
+    assert min(y0 for _, y0, _, _ in rows) > float(frame.get("height"))
+
+
 def test_place_labels_keeps_inside_and_apart():
     """The placer on its own: 25 labels at one point with an obstacle over it; every box lies
     within the bounds, touches no obstacle and no other box (shapely as reference)."""
@@ -160,6 +189,11 @@ def test_demo_map_labels_every_stretch_and_names_the_roads(demo_out):
         boxes = _label_boxes(panel)
         assert _no_two_overlap(boxes.values())
         labelled += list(boxes)
+        # road names (rotated rectangles) cover no rank label and no other name
+        names = [_rotated(t.get("data-box")) for t in panel.iter(f"{NS}text") if t.get("class") == "road-label"]
+        ranks = [shapely.box(*b) for b in boxes.values()]
+        for i, n in enumerate(names):
+            assert not any(n.intersection(o).area > 1e-6 for o in ranks + names[:i])
     assert sorted(labelled) == sorted(d["rank"])
     names = dict(zip(roads["road_id"], roads["name"]))
     shown = {t.get("data-road"): t.text for t in root.iter(f"{NS}text") if t.get("class") == "road-label"}
@@ -327,3 +361,25 @@ def test_scale_bar_in_the_run_units(system, labels):
     assert float(bar.get("data-px")) == pytest.approx(float(bar.get("data-length-m")) * float(panel.get("data-scale")),
                                                       rel=1e-3)
     assert any(t.text == "N" for t in panel.iter(f"{NS}text"))
+
+
+def test_map_failure_gives_a_placeholder_and_is_recorded(tmp_path, samples, run_cli, monkeypatch):
+    """A map that cannot be drawn leaves a placeholder in the report and a line in run.json's
+    output_failures; the rest of the report is written (exit code 1, as for any lost figure)."""
+    import json
+
+    import pipeline.outputs.report as report
+
+    def broken(*a, **k):
+        raise ValueError("map broke")
+
+    monkeypatch.setattr(report, "network_map_svg", broken)
+    out = tmp_path / "o"
+    code, _, err = run_cli("run", "--roads", samples["roads"], "--ground", samples["dem"], "--workers", "1",
+                           "--out", out)
+    assert code == 1 and "map broke" in err
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "The overview map could not be drawn" in html and "<svg" not in html
+    assert "Ranked inventory" in html
+    run = json.loads((out / "run.json").read_text())
+    assert [f["output"] for f in run["output_failures"]] == ["report.html overview map"]
