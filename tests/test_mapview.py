@@ -383,3 +383,23 @@ def test_map_failure_gives_a_placeholder_and_is_recorded(tmp_path, samples, run_
     assert "Ranked inventory" in html
     run = json.loads((out / "run.json").read_text())
     assert [f["output"] for f in run["output_failures"]] == ["report.html overview map"]
+
+
+def test_skipped_roads_are_drawn_apart_and_named_in_the_legend():
+    """A road the run skipped is drawn dotted in light grey, not as audited, and the legend
+    says so; without one, the legend has no such entry."""
+    table = _roads({"R1": [(0, 0), (4000, 0)], "R2": [(0, 1000), (4000, 1500)]}, {"R1": "Mill Road",
+                                                                                  "R2": "Ford Lane"})
+    table.loc[1, "skip_reason"] = "no ground data under the road"
+    _, root = _svg(table, _inventory([]))
+    lines = {p.find(f"{NS}title").text: p for p in root.iter(f"{NS}polyline") if p.get("class") == "road"}
+    assert lines["Ford Lane (R2), skipped"].get("stroke-dasharray")
+    assert not lines["Mill Road (R1)"].get("stroke-dasharray")
+    legend = " ".join(t.text or "" for g in root.iter(f"{NS}g") if g.get("class") == "legend"
+                      for t in g.iter(f"{NS}text"))
+    assert "road skipped" in legend
+    table.loc[1, "skip_reason"] = None
+    _, root = _svg(table, _inventory([]))
+    legend = " ".join(t.text or "" for g in root.iter(f"{NS}g") if g.get("class") == "legend"
+                      for t in g.iter(f"{NS}text"))
+    assert "road skipped" not in legend

@@ -889,10 +889,16 @@ def map_svg(roads: list[MapRoad], stretches: list[MapStretch], units, width: flo
     return _document(width, y + 4 + h + MARGIN, head + body)
 
 
+# printed, a tall map is kept within one A4 or Letter page (it scales down whole, never cut)
+PRINT_STYLE = "@media print { svg.network-map { max-height: 235mm; } }"
+
+
 def _document(width: float, height: float, parts: list[str]) -> str:
+    """The SVG element: scales down to its container's width, and to a page's height in print."""
     return (f"<svg xmlns='http://www.w3.org/2000/svg' class='network-map' viewBox='0 0 {width:.0f} {height:.0f}' "
             f"width='{width:.0f}' height='{height:.0f}' style='max-width:100%;height:auto' role='img' "
-            f"font-family='{FONT}' aria-label='{_a(TITLE)}'><title>{_a(TITLE)}</title>" + "".join(parts) + "</svg>")
+            f"font-family='{FONT}' aria-label='{_a(TITLE)}'><title>{_a(TITLE)}</title><style>{PRINT_STYLE}</style>"
+            + "".join(parts) + "</svg>")
 
 
 def layout_panels(roads: list[MapRoad], stretches: list[MapStretch], units, inner: float):
