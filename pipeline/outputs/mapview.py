@@ -918,12 +918,14 @@ def layout_panels(roads: list[MapRoad], stretches: list[MapStretch], units, inne
     overview = Panel("overview", View(ext, inner, frame_height(inner, _aspect(ext), 0.22, 0.4), 10.0),
                      heading="Overview of the whole network; the lettered boxes are drawn larger below",
                      key="overview")
-    cols = 2 if len(windows) <= 4 else 3
+    tall = float(np.median([_aspect(w) for w in windows])) > 1.2  # tall insets go side by side, narrower
+    cols = min(len(windows), 4) if tall else 2 if len(windows) <= 4 else 3
     col_w = (inner - (cols - 1) * GAP) / cols
     insets = []
     for k, w in enumerate(windows):
         letter = chr(ord("A") + k)
-        insets.append(Panel("inset", View(w, col_w, frame_height(col_w, _aspect(w), 0.55, 0.95), 26.0),
+        hi = 1.8 if tall else 0.95
+        insets.append(Panel("inset", View(w, col_w, frame_height(col_w, _aspect(w), 0.55, hi), 26.0),
                             heading=f"Inset {letter}", letter=letter, key=f"inset-{letter}"))
     members = _assign(stretches, insets)
     rows = [[(0.0, overview, stretches)]]
