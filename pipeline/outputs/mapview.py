@@ -696,7 +696,7 @@ def _footer(view: View, units, y: float) -> str:
             f"<rect x='{x0 + bar / 2:.1f}' y='{y + 5:.1f}' width='{bar / 2:.1f}' height='4' fill='white' "
             f"stroke='{INK}' stroke-width='0.8'/>{ticks}"
             f"<text x='{x0 + bar + 6:.1f}' y='{y + 11:.1f}' font-size='10' fill='{INK}'>{_a(label)}</text></g>"
-            f"<g class='north-arrow'><path d='M {nx:.1f} {y + 1:.1f} L {nx + 5:.1f} {y + 13:.1f} L {nx:.1f} "
+            f"<g class='north-arrow'><title>north: grid north of the working (projected) CRS</title><path d='M {nx:.1f} {y + 1:.1f} L {nx + 5:.1f} {y + 13:.1f} L {nx:.1f} "
             f"{y + 10:.1f} L {nx - 5:.1f} {y + 13:.1f} Z' fill='{INK}'/>"
             f"<text x='{nx - 9:.1f}' y='{y + 12:.1f}' font-size='10' font-weight='bold' text-anchor='end' "
             f"fill='{INK}'>N</text></g>")
@@ -719,27 +719,32 @@ FOOTER = 20.0
 
 
 def render_panel(panel: Panel, roads: list[MapRoad], stretches: list[MapStretch], units,
-                 insets: list[Panel] = ()) -> tuple[str, float]:
+                 insets: list[Panel] = (), others: list[MapStretch] = ()) -> tuple[str, float]:
     """A panel as an SVG group in its own coordinates (heading, frame, footer); returns the
     SVG and its height (px).
 
     The overview draws markers only and outlines the insets; the other panels label every
-    stretch given to them and name the roads.
+    stretch given to them and name the roads. ``others`` are stretches labelled in another
+    inset: drawn here too, with their markers, where they fall in this frame, so that no
+    deficient road looks clean.
     """
     v = panel.view
     top = HEADER if panel.heading else 0.0
     frame = (0.0, 0.0, v.w, v.h)
     road_svg, lines = _road_paths(roads, v)
     pts = v.px(np.array([s.anchor for s in stretches])) if stretches else np.zeros((0, 2))
-    taken = _marker_boxes(pts)
-    body = road_svg + _stretch_paths(stretches, v)
+    seen = v.seen()
+    extra = [s for s in others if seen[0] <= s.anchor[0] <= seen[2] and seen[1] <= s.anchor[1] <= seen[3]]
+    extra_pts = v.px(np.array([s.anchor for s in extra])) if extra else np.zeros((0, 2))
+    taken = _marker_boxes(np.vstack([pts, extra_pts]))
+    body = road_svg + _stretch_paths(list(stretches) + extra, v)
     over, labels = [], []
     if panel.kind == "overview":
         outlines, labels, taken = _inset_outlines(insets, v, taken)
         body += outlines + [_marker(s, p) for s, p in zip(stretches, pts)]
     else:
         leaders, marks, labels, taken, over = _rank_labels(stretches, pts, taken, frame)
-        body += leaders + marks
+        body += leaders + [_marker(s, p) for s, p in zip(extra, extra_pts)] + marks
         names, taken, _ = place_road_names(lines, taken, frame)
         labels = names + labels
     clip = f"map-clip-{panel.key}"
@@ -875,8 +880,10 @@ def map_svg(roads: list[MapRoad], stretches: list[MapStretch], units, width: flo
     for row in panels:
         heights = []
         for x, panel, members in row:
+            member = {id(s) for s in members}
             svg, h = render_panel(panel, roads, members, units, [p for r in panels for _, p, _ in r
-                                                                 if p.kind == "inset"])
+                                                                 if p.kind == "inset"],
+                                  [s for s in stretches if id(s) not in member] if panel.kind == "inset" else [])
             body.append(f"<g transform='translate({MARGIN + x:.1f} {y:.1f})'>{svg}</g>")
             heights.append(h)
         y += max(heights) + GAP
