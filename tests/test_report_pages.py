@@ -12,7 +12,6 @@ import shutil
 import subprocess
 from html.parser import HTMLParser
 
-import numpy as np
 import pandas as pd
 import pytest
 

@@ -114,13 +114,14 @@ def _write_data_outputs(folder: Path, result, summary: dict, cfg, units) -> list
 def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[tuple[str, str]],
                   pages: list[dict], futures: list | None, failures: list[dict], roads: list[dict],
                   road_futures: list | None) -> None:
-    """The overview map, the curve figures and the roads' long profiles (from ``futures`` and
+    """The overview map (inline SVG, its labels linked to the curve pages), the curve figures and the roads' long profiles (from ``futures`` and
     ``road_futures`` where drawn in a pool) and report.html; a figure that fails gives a
     placeholder, a report that fails is left out."""
     try:
-        map_png = report.png_data_uri(report.network_map(result, result.evaluation.inventory, units))
+        paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
+        map_svg = report.network_map_svg(result, result.evaluation.inventory, units, paged)
     except Exception as exc:
-        map_png = ""  # a placeholder in the report
+        map_svg = ""  # a placeholder in the report
         failures.append(_failure("report.html overview map", exc))
     pngs = []
     for i, page in enumerate(pages):
@@ -138,7 +139,7 @@ def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[
             road_pngs[road["road_id"]] = None  # a placeholder in its section
             failures.append(_failure(f"report.html long profile of road {road['road_id']}", exc))
     try:
-        html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_png,
+        html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_svg,
                                         road_pngs)
         (folder / "report.html").write_text(html_text, encoding="utf-8")
     except Exception as exc:

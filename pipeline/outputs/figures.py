@@ -1,8 +1,9 @@
-"""The figures: the network map, a deficient curve's long profile and a road's long profile.
+"""The figures: a deficient curve's long profile and a road's long profile (the network map is
+SVG, in :mod:`pipeline.outputs.mapview`).
 
 Drawn with matplotlib (Agg), imported only when a figure is drawn. Severity colours are
 :data:`pipeline.outputs.report_style.SEVERITY_COLOURS` (one hue, light to dark, the worst the
-darkest), backed by line width so they survive grey printing; roads grey.
+darkest), backed by line width so they survive grey printing.
 """
 
 from __future__ import annotations
@@ -12,17 +13,14 @@ import io
 
 import numpy as np
 import pandas as pd
-import shapely
 
-from ..profile.stations import Polyline
-from .report_style import SEVERITY_COLOURS
+from .report_style import ROAD_GREY, SEVERITY_COLOURS
 
 SEVERITY_STYLE = {
     "minor": {"color": SEVERITY_COLOURS["minor"], "lw": 3.0},
     "moderate": {"color": SEVERITY_COLOURS["moderate"], "lw": 4.5},
     "severe": {"color": SEVERITY_COLOURS["severe"], "lw": 6.0},
 }
-ROAD_GREY = "#9A9A9A"
 
 
 def pyplot():
@@ -84,108 +82,6 @@ def curve_png(spec: dict) -> str:
         A ``data:image/png;base64,...`` URI.
     """
     return png_data_uri(curve_figure(**spec))
-
-
-# ------------------------------------------------------------------- network map
-def network_map(result, inventory: pd.DataFrame, units):
-    """The network map: roads in grey, deficient stretches coloured by severity.
-
-    Top ranks are labelled; with a legend, a scale bar and a north arrow; drawn in
-    the working (metric, north-up) CRS.
-
-    Parameters
-    ----------
-    result : NetworkResult
-        The run's result (the roads' working-CRS centrelines).
-    inventory : pandas.DataFrame
-        The ranked deficient stretches, internal units.
-    units : OutputUnits
-        The run's output units, for the scale bar.
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-    """
-    plt = pyplot()
-    fig, ax = plt.subplots(figsize=(9.0, 7.0))
-    fig.subplots_adjust(left=0.12, right=0.97, bottom=0.14, top=0.94)
-    t = result.roads.table
-    _draw_roads(ax, t[t["geometry"].notna()])
-    polys = _draw_deficiencies(ax, t.set_index("road_id")["geometry"], inventory)
-    for _, d in inventory[inventory["rank"] <= 10].iterrows():
-        if d["road_id"] in polys:
-            xy = polys[d["road_id"]].cut(d["from_m"], d["to_m"])
-            ax.annotate(f"#{int(d['rank'])}", xy[len(xy) // 2], fontsize=8.5, fontweight="bold", color="black",
-                        xytext=(-6, -12), textcoords="offset points", zorder=6)
-    ax.autoscale_view()
-    ax.set_aspect("equal")
-    ax.set_xlabel("easting in the working CRS (m)")
-    ax.set_ylabel("northing in the working CRS (m)")
-    ax.set_title("Road network and deficient stretches by severity (labels: rank)")
-    handles = [plt.Line2D([], [], color=ROAD_GREY, lw=1.6, label="road audited")]
-    handles += [plt.Line2D([], [], color=v["color"], lw=v["lw"], label=f"{k} deficiency")
-                for k, v in SEVERITY_STYLE.items()]
-    ax.legend(handles=handles, loc="lower right", framealpha=0.9)
-    _scale_bar_and_north(ax, units)
-    ax.ticklabel_format(useOffset=False, style="plain")
-    ax.tick_params(axis="x", labelrotation=30)
-    return fig
-
-
-def _draw_roads(ax, lines: pd.DataFrame) -> None:
-    """Every centreline in grey, named where the roads are few enough to read."""
-    from matplotlib.collections import LineCollection
-
-    coords = [shapely.get_coordinates(g) for g in lines["geometry"]]
-    ax.add_collection(LineCollection(coords, colors=ROAD_GREY, linewidths=1.6, zorder=1))
-    if len(lines) <= 60:
-        for rid, xy in zip(lines["road_id"], coords):
-            mid = xy[len(xy) // 2]
-            ax.annotate(str(rid), mid, fontsize=8, color="#404040", xytext=(4, 4), textcoords="offset points")
-
-
-def _draw_deficiencies(ax, geo: pd.Series, inventory: pd.DataFrame) -> dict:
-    """The deficient stretches by severity, severe on top; returns the centrelines used, by road."""
-    from matplotlib.collections import LineCollection
-
-    polys: dict = {}
-    for sev, st in SEVERITY_STYLE.items():
-        rows = inventory[inventory["severity"] == sev]
-        segs = []
-        for rid, a, b in zip(rows["road_id"], rows["from_m"], rows["to_m"]):
-            if rid not in polys and geo.get(rid) is not None:
-                polys[rid] = Polyline(geo[rid])
-            if rid in polys:
-                segs.append(polys[rid].cut(a - 5, b + 5))
-        if segs:
-            ax.add_collection(LineCollection(segs, colors=st["color"], linewidths=st["lw"],
-                                             zorder=2 + list(SEVERITY_STYLE).index(sev)))
-    return polys
-
-
-def _nice_length(span: float) -> float:
-    """A round scale-bar length near a fifth of ``span``."""
-    target = span / 5.0
-    exp = 10 ** np.floor(np.log10(target))
-    for m in (1, 2, 5, 10):
-        if m * exp >= target:
-            return m * exp
-    return 10 * exp
-
-
-def _scale_bar_and_north(ax, units) -> None:
-    """A scale bar at the lower left and a north arrow at the upper right."""
-    x0, x1 = ax.get_xlim()
-    y0, y1 = ax.get_ylim()
-    bar = _nice_length(x1 - x0)
-    bx, by = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0)
-    ax.plot([bx, bx + bar], [by, by], color="black", lw=3, solid_capstyle="butt")
-    label = (f"{units.length(bar):,.0f} {units.length_label}" if bar < 1000 or units.us
-             else f"{bar / 1000:g} km")
-    ax.text(bx + bar / 2, by + 0.015 * (y1 - y0), label, ha="center", va="bottom", fontsize=9)
-    ax.annotate("N", xy=(x1 - 0.05 * (x1 - x0), y1 - 0.05 * (y1 - y0)),
-                xytext=(x1 - 0.05 * (x1 - x0), y1 - 0.15 * (y1 - y0)), ha="center", fontsize=11, fontweight="bold",
-                arrowprops={"arrowstyle": "-|>", "color": "black", "lw": 1.5})
 
 
 # ------------------------------------------------------------------- curve figure

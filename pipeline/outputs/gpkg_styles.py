@@ -13,9 +13,8 @@ from datetime import datetime, timezone
 from pathlib import Path
 from xml.sax.saxutils import escape
 
-from .report_style import SEVERITY_COLOURS
+from .report_style import ROAD_GREY, SEVERITY_COLOURS
 
-ROAD_GREY = "#9A9A9A"
 CURVE_BLUE = "#3A6EA5"
 HCURVE_GREEN = "#4D8B31"
 

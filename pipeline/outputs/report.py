@@ -26,13 +26,14 @@ import pandas as pd
 
 from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
-from .figures import SEVERITY_STYLE, curve_figure, curve_png, network_map, png_data_uri, road_figure
+from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
+from .mapview import network_map_svg
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
 from .tables import curves_table, deficiencies_table
 from .workbook import _site_text, brief_lines, worst_sites
 
 __all__ = ["SEVERITY_STYLE", "build_report", "curve_anchor", "curve_figure", "curve_png", "data_quality_html",
-           "network_map", "png_data_uri", "report_pages", "road_anchor", "road_figure", "road_pages", "road_png",
+           "network_map_svg", "png_data_uri", "report_pages", "road_anchor", "road_figure", "road_pages", "road_png",
            "write_profiles_pdf"]
 
 
@@ -260,7 +261,7 @@ def data_quality_html(dq: dict | None, units) -> str:
 
 
 def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]],
-                 pages: list[dict] | None = None, pngs: list[str] | None = None, map_png: str | None = None,
+                 pages: list[dict] | None = None, pngs: list[str] | None = None, map_svg: str | None = None,
                  road_pngs: dict | None = None) -> str:
     """The whole report as one HTML string.
 
@@ -284,9 +285,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     pngs : list of str, optional
         Each page's figure as a data URI, ``None`` or empty for a placeholder;
         drawn here when not given.
-    map_png : str, optional
-        The overview map as a data URI, empty for a placeholder; drawn here when
-        not given.
+    map_svg : str, optional
+        The overview map as inline SVG (:func:`network_map_svg`), empty for a
+        placeholder; drawn here (without links to the curve pages) when not given.
     road_pngs : dict, optional
         Each road's long profile (:func:`road_pages`) as a data URI by road id, ``None`` or
         empty for a placeholder; a road not in it has no profile in the report. Drawn here
@@ -310,7 +311,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     parts.append(_toc([(anchors[r], r, n if isinstance(n, str) else "") for r, n in zip(roads["road_id"], roads["name"])]))
     parts += _brief_section(result, summary, units, paged, anchors)
     parts += _summary_section(result, summary, units)
-    parts += _map_section(result, units, map_png)
+    parts += _map_section(result, units, map_svg)
     parts += ["<div class='wide'>", *_inventory_section(result.evaluation.inventory, units, paged, anchors), "</div>"]
     parts += _curve_section(pages, pngs, units)
     parts += _roads_section(result, cfg, units, roads, paged, anchors, road_pngs)
@@ -425,12 +426,14 @@ def _where_text(r: pd.Series, units) -> str:
     return text + "."
 
 
-def _map_section(result, units, map_png: str | None) -> list[str]:
-    """The overview map, drawn here unless given; a placeholder where it could not be drawn."""
-    map_png = png_data_uri(network_map(result, result.evaluation.inventory, units)) if map_png is None else map_png
-    return ["<h2 id='map'>Network overview</h2>",
-            f"<img alt='Map of the audited roads with deficient stretches coloured by severity' "
-            f"src='{map_png}'>" if map_png else FIGURE_MISSING.format(what="The overview map")]
+def _map_section(result, units, map_svg: str | None) -> list[str]:
+    """The overview map, an inline SVG (:mod:`pipeline.outputs.mapview`), drawn here unless
+    given (then without links to the curve pages); a placeholder where it could not be drawn."""
+    if map_svg is None:
+        map_svg = network_map_svg(result, result.evaluation.inventory, units)
+    return ["<h2 id='map' style='break-after: avoid'>Network overview</h2>",
+            f"<figure class='map' style='margin: 0; break-inside: avoid'>{map_svg}</figure>" if map_svg
+            else FIGURE_MISSING.format(what="The overview map")]
 
 
 def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None, anchors: dict | None = None) -> list[str]:

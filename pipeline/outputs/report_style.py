@@ -10,6 +10,8 @@ images loaded (``data-images-loaded`` on the body), for the browser check.
 # so the order reads the same to every kind of colour vision and in grey (the 4-class "Oranges"
 # sequential scheme of ColorBrewer, Brewer 2003, its three darkest classes)
 SEVERITY_COLOURS = {"minor": "#FDBE85", "moderate": "#FD8D3C", "severe": "#D94701"}
+# the road network drawn under them, in every output (map, figures, GIS styles)
+ROAD_GREY = "#9A9A9A"
 
 CSS = """
 body { font-family: "DejaVu Sans", Arial, sans-serif; font-size: 10.5pt; color: #1a1a1a; margin: 1.5em auto;
