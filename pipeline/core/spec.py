@@ -83,6 +83,8 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "us_foot": ("ft", "foot of US customary output: 'ft' (international) or 'us_ft' (US survey)"),
         "report_curves": (50, "deficient curves given a page of their own in report.html (in rank order)"),
         "profiles_pdf": (False, "also write profiles.pdf, one long profile per road for the field team"),
+        "sheet_paper": ("auto", "paper of profiles.pdf, landscape: 'A3', 'A4', 'tabloid', 'letter', or 'auto' "
+                                "(A3 for metric runs, tabloid for US runs)"),
     },
     "criteria": {
         "set": ("aashto-2018-metric", "criteria set to judge against (sightaudit criteria lists them)"),
