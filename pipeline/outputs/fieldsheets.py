@@ -55,6 +55,8 @@ MARK_BLUE = "#2F5D8A"
 HIDDEN_PURPLE = "#3B1F5C"
 UNDETERMINED_GREY = "#9A9A9A"
 HATCH = {"increasing": "////", "decreasing": "\\\\\\\\"}
+# no ligatures, so that a reader searching the PDF finds "profile" and "fitted" (HarfBuzz feature tags)
+NO_LIGATURES = ("-liga", "-clig")
 
 
 # ------------------------------------------------------------------- stations
@@ -263,8 +265,10 @@ class _Placer:
         self.fig = fig
         self.renderer = fig.canvas.get_renderer()
         self.taken: list = []
+        self.moved = False  # whether a label has been moved from its first place
 
     def extent(self, text):
+        text.set_fontfeatures(NO_LIGATURES)
         return text.get_window_extent(self.renderer)
 
     def _overlap(self, bb) -> float:
@@ -315,6 +319,7 @@ class _Placer:
             cost = self._overlap(bb.expanded(1.05, 1.1))
             if cost == 0:
                 self.taken.append(bb)
+                self.moved |= (dx, dy) != tuple(offsets[0])
                 return True
             if best is None or cost < best[0]:
                 best = (cost, dx, dy)
@@ -323,6 +328,7 @@ class _Placer:
             return False
         text.xyann = best[1:]
         self.taken.append(self.extent(text))
+        self.moved = True
         return True
 
 
@@ -361,8 +367,12 @@ def _sheet(rp, cv, rows, rid, name, units, setup, date, k, n, ve):
     _band(band, placer, rp, units, setup, lo_m, min(hi_m, end_m), pv_points, fs)
     title = f"{rid} {name}" if isinstance(name, str) and name else str(rid)
     span_text = f"{station(lo_m, units, 0)} to {station(min(hi_m, end_m), units, 0)}"
-    _header(fig, lay, w, h, title, span_text, k, n)
+    _header(fig, placer, lay, w, h, title, span_text, k, n)
     _title_block(fig, placer, lay, w, h, setup, units, title, span_text, k, n, ve, date, handles)
+    from matplotlib.text import Text
+
+    for t in fig.findobj(Text):
+        t.set_fontfeatures(NO_LIGATURES)
     return fig
 
 
@@ -414,13 +424,13 @@ def _draw_stretches(ax, rows: pd.DataFrame, lo: float, hi: float, units) -> list
         if b < lo or a > hi:
             continue
         direction = "increasing" if d.direction == "increasing" else "decreasing"
-        arrow = "increasing chainage" if direction == "increasing" else "decreasing chainage"
+        arrow = f"{direction} chainage"
         if d.verdict == "deficient":
             colour, key = SEVERITY_COLOURS.get(d.severity, SEVERITY_COLOURS["severe"]), (d.severity, direction)
-            label = f"{d.severity} deficiency, driving in {arrow}"
+            label = f"{d.severity} deficiency, {arrow}"
         else:
             colour, key = UNDETERMINED_GREY, ("undetermined", direction)
-            label = f"undetermined (the data cannot decide), driving in {arrow}"
+            label = f"undetermined (data cannot decide), {arrow}"
         ax.axvspan(L(a), L(b) + 1e-9, facecolor=_faded(colour, 0.35), hatch=HATCH[direction], hatchcolor=colour,
                    lw=0, zorder=0.5)
         if key not in seen:
@@ -435,8 +445,7 @@ def _draw_stretches(ax, rows: pd.DataFrame, lo: float, hi: float, units) -> list
                    lw=0, zorder=0.6)
         if "hidden" not in seen:
             seen.add("hidden")
-            handles.append(Patch(facecolor=HIDDEN_PURPLE, alpha=0.6, label="road hidden at the required SSD "
-                                                                            "(bar along the foot)"))
+            handles.append(Patch(facecolor=HIDDEN_PURPLE, alpha=0.6, label="road hidden at the required SSD (foot)"))
     haz = rows[rows["hidden_hazard"].fillna("none").astype(str) != "none"]
     for d in haz.itertuples():
         hx = float(d.hazard_chainage_m)
@@ -612,28 +621,32 @@ def _band(band, placer, rp, units, setup, lo, hi, pv_points, fs) -> None:
     rows_px = box.height / 3.0
     tick_m = setup["tick"] * units.m_per_length
     ticks = np.arange(math.ceil(lo / tick_m - 1e-9) * tick_m, hi + 1e-6, tick_m)
-    items = [(x, station(x, units), _z_at(rp, "ground_z_m", x), zt, MARK_BLUE, True) for _, x, zt in pv_points]
-    items += [(x, station(x, units, 0), _z_at(rp, "ground_z_m", x), _z_at(rp, "fitted_z_m", x), "black", False)
-              for x in ticks]
+    # (chainage, station, ground, fitted, colour, bold, must show): PV points, then the road's end on its
+    # last sheet, then the regular ticks (left out where they would meet one of the others)
+    items = [(x, station(x, units), _z_at(rp, "ground_z_m", x), zt, MARK_BLUE, True, True) for _, x, zt in pv_points]
     if hi - lo > 0.05 * tick_m and not np.any(np.abs(ticks - hi) < 1e-6):
         items.append((hi, station(hi, units), _z_at(rp, "ground_z_m", hi), _z_at(rp, "fitted_z_m", hi), "black",
-                      False))  # the road's end on its last sheet
+                      False, True))
+    items += [(x, station(x, units, 0), _z_at(rp, "ground_z_m", x), _z_at(rp, "fitted_z_m", x), "black", False,
+               False) for x in ticks]
     from matplotlib.transforms import Bbox
 
-    mm_per_m = setup["sheet_length_m"] and (box.width / placer.fig.dpi * 25.4) / setup["sheet_length_m"]
-    pv_x = np.array([v[1] for v in pv_points] or [np.inf])
-    clear = [bool(np.abs(pv_x - x).min() * mm_per_m > 8.0 and (x - lo) * mm_per_m > 4.0
-                  and (lo + setup["sheet_length_m"] - x) * mm_per_m > 4.0) for x, *_ in items]
+    mm_per_m = (box.width / placer.fig.dpi * 25.4) / setup["sheet_length_m"]
+    xs = np.array([v[0] for v in items])
+    near = [np.delete(np.abs(xs - x), j).min(initial=np.inf) * mm_per_m for j, x in enumerate(xs)]
+    clear = [bool(near[j] > 8.0 and (x - lo) * mm_per_m > 4.0 and (lo + setup["sheet_length_m"] - x) * mm_per_m > 4.0)
+             for j, x in enumerate(xs)]
+    placer.moved = False
     for i in range(3):
         row = Bbox.from_extents(box.x0 + 1, box.y1 - (i + 1) * rows_px + 1, box.x1 - 1, box.y1 - i * rows_px - 1)
-        for j, (x, st, zg, zf, colour, key) in enumerate(items):
+        for j, (x, st, zg, zf, colour, bold, key) in enumerate(items):
             val = (st, f"{L(zg):.2f}" if np.isfinite(zg) else "no data", f"{L(zf):.2f}" if np.isfinite(zf) else "-")[i]
             t = band.annotate(val, (L(x), 2.5 - i), xytext=(0, 0), textcoords="offset points", rotation=90,
                               ha="center", va="center", fontsize=fs - 0.5, color=colour, annotation_clip=False,
-                              fontweight="bold" if key else "normal",
+                              fontweight="bold" if bold else "normal",
                               bbox={"boxstyle": "square,pad=0.1", "fc": "white", "ec": "none"} if key else None)
-            if not key and j > len(pv_points) and clear[j]:
-                continue  # a regular tick far from the PV points and the edges: nothing to meet
+            if clear[j] and j > 0 and not placer.moved:
+                continue  # far from every other value and the edges, none moved: nothing to meet (the first checked)
             wpt = placer.extent(t).width * 72.0 / placer.fig.dpi if key else 0.0
             offs = [(0, 0)] + ([(s * k * (wpt + 0.5), 0) for k in (1, 2, 3) for s in (1, -1)] if key else [])
             placer.place(t, row, offs, required=key)
@@ -641,13 +654,25 @@ def _band(band, placer, rp, units, setup, lo, hi, pv_points, fs) -> None:
         band.axvline(L(x), color=MARK_BLUE, lw=0.4, ls=":")
 
 
-def _header(fig, lay, w, h, title, span_text, k, n) -> None:
-    """The sheet's heading above the profile."""
+def _header(fig, placer, lay, w, h, title, span_text, k, n) -> None:
+    """The sheet's heading above the profile, smaller type for a long road name."""
     y = (h - lay["margin"] - 2.0) / h
-    fig.text(lay["margin"] / w, y, f"{title}: long profile, {span_text}", ha="left", va="top",
-             fontsize=lay["head_font"], fontweight="bold")
-    fig.text(1 - lay["right"] / w, y, f"sheet {k + 1} of {n}", ha="right", va="top", fontsize=lay["head_font"],
-             fontweight="bold")
+    right = fig.text(1 - lay["right"] / w, y, f"sheet {k + 1} of {n}", ha="right", va="top",
+                     fontsize=lay["head_font"], fontweight="bold")
+    limit = placer.extent(right).x0 - 12.0 * fig.dpi / 72.0
+    words = f"{title}: long profile, {span_text}"
+    for size in np.arange(lay["head_font"], 5.9, -0.5):
+        t = fig.text(lay["margin"] / w, y, words, ha="left", va="top", fontsize=size, fontweight="bold")
+        if placer.extent(t).x1 <= limit:
+            return
+        t.remove()
+    while len(title) > 4:  # still too long at 6 pt: the name shortened (it is whole in the title block)
+        title = title[:-2]
+        t = fig.text(lay["margin"] / w, y, f"{title}…: long profile, {span_text}", ha="left", va="top",
+                     fontsize=6.0, fontweight="bold")
+        if placer.extent(t).x1 <= limit:
+            return
+        t.remove()
 
 
 def _title_block(fig, placer, lay, w, h, setup, units, title, span_text, k, n, ve, date, handles) -> None:
@@ -676,13 +701,14 @@ def _title_block(fig, placer, lay, w, h, setup, units, title, span_text, k, n, v
 
     # legend, fitted into its cell (fewer columns, then smaller type)
     x0, cw = cells[0]
-    for size in (fs - 1.0, fs - 1.5, fs - 2.0, fs - 2.5):
+    tries = [(2, fs - 1.0), (2, fs - 1.5), (2, fs - 2.0), (1, fs - 2.0), (2, fs - 2.5), (3, fs - 3.0)]
+    for ncol, size in tries:
         leg = fig.legend(handles=handles, loc="upper left", bbox_to_anchor=((x0 + 1) / w, (m + th - 1) / h),
-                         ncol=2, fontsize=size, frameon=False, handlelength=2.0, columnspacing=1.0,
+                         ncol=ncol, fontsize=size, frameon=False, handlelength=2.0, columnspacing=1.0,
                          borderaxespad=0.2, labelspacing=0.35, title="legend", title_fontsize=size + 0.5,
                          alignment="left")
         bb = leg.get_window_extent(placer.renderer)
-        if (bb.x1 <= cell_box(0).x1 and bb.y0 >= cell_box(0).y0) or size <= fs - 2.5:
+        if (bb.x1 <= cell_box(0).x1 and bb.y0 >= cell_box(0).y0) or (ncol, size) == tries[-1]:
             break
         leg.remove()
     scale_v = setup["ratio"] / ve
@@ -691,14 +717,14 @@ def _title_block(fig, placer, lay, w, h, setup, units, title, span_text, k, n, v
     else:
         v_text = f"vertical 1:{scale_v:.0f}"
     ve_text = f"vertical exaggeration {ve:g}x"
-    if ve < EXAGGERATIONS[0]:
-        ve_text += f" (the relief of this road does not fit at {EXAGGERATIONS[0]}x)"
+    ve_why = [(f"(this road's relief does not fit at {EXAGGERATIONS[0]}x)", fs - 0.5, "normal")] \
+        if ve < EXAGGERATIONS[0] else []
     per = "1000 m" if not units.us else "100 ft"
     blocks = [
         [(title, fs + 2.0, "bold"), ("long profile: ground and fitted alignment", fs, "normal"),
          (span_text, fs, "normal"), (f"stations of {per}; elevations in {units.length_label}", fs, "normal")],
-        [(f"horizontal {setup['scale_text']}", fs, "bold"), (v_text, fs, "bold"), (ve_text, fs, "bold"),
-         (f"one sheet = {setup['sheet_length']:,.0f} {units.length_label} of road", fs, "normal"),
+        [(f"horizontal {setup['scale_text']}", fs, "bold"), (v_text, fs, "bold"), (ve_text, fs, "bold")] + ve_why +
+        [(f"one sheet = {setup['sheet_length']:,.0f} {units.length_label} of road", fs, "normal"),
          (f"{PAPER_NAMES[setup['paper']]} landscape, printed at 100 %", fs, "normal")],
         [(f"sheet {k + 1} of {n}", fs + 2.0, "bold"), (f"date {date}", fs, "normal"),
          (f"sightaudit {__version__}", fs, "normal")],
@@ -726,24 +752,25 @@ def _caution(fig, placer, box, fs: float) -> None:
 
 
 def _text_in_cell(fig, placer, box, lines) -> None:
-    """Lines of text from the top of a cell down, smaller when they would leave it."""
-    for shrink in (0.0, 0.5, 1.0, 1.5, 2.0):
+    """Lines of text from the top of a cell down, smaller (and at last wrapped) when they would
+    leave it."""
+    for shrink in (0.0, 0.5, 1.0, 1.5, 2.0, 2.5):
         made, y, fits = [], box.y1, True
         for text, size, weight in lines:
             t = fig.text(*_fig_xy(fig, box.x0, y), text, fontsize=size - shrink, fontweight=weight, ha="left",
                          va="top")
             bb = placer.extent(t)
+            if bb.x1 > box.x1 and shrink == 2.5:  # the smallest type still too wide: wrapped by measure
+                chars = max(int(len(text) * box.width / bb.width) - 1, 8)
+                t.set_text(textwrap.fill(text, width=chars))
+                bb = placer.extent(t)
             made.append(t)
-            y = bb.y0 - 1.5 * fig.dpi / 72.0
+            y = min(y - 1.45 * (size - shrink) * fig.dpi / 72.0, bb.y0 - 0.3 * (size - shrink) * fig.dpi / 72.0)
             fits &= bb.x1 <= box.x1 and bb.y0 >= box.y0
-        if fits:
+        if fits or shrink == 2.5:
             return
         for t in made:
             t.remove()
-    y = box.y1  # still too long: the smallest type
-    for text, size, weight in lines:
-        t = fig.text(*_fig_xy(fig, box.x0, y), text, fontsize=size - 2.5, fontweight=weight, ha="left", va="top")
-        y = placer.extent(t).y0 - 1.0
 
 
 def _fig_xy(fig, x_disp: float, y_disp: float) -> tuple[float, float]:
