@@ -49,7 +49,8 @@ def metric_out(tmp_path_factory):
 @pytest.fixture(scope="module")
 def us_out(tmp_path_factory):
     # the sample's speeds are in km/h, read as such in this US customary run
-    return _sheets_run(tmp_path_factory, "--units", "us", config='[roads]\nspeed_unit = "kmh"\nspeed_column = "speed_kmh"\n')
+    return _sheets_run(tmp_path_factory, "--units", "us",
+                       config='[roads]\nspeed_unit = "kmh"\nspeed_column = "speed_kmh"\n')
 
 
 def _page_sizes(pdf) -> list[tuple[float, float]]:

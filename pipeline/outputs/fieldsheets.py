@@ -268,7 +268,7 @@ class _Placer:
         self.moved = False  # whether a label has been moved from its first place
 
     def extent(self, text):
-        text.set_fontfeatures(NO_LIGATURES)
+        _no_ligatures(text)
         return text.get_window_extent(self.renderer)
 
     def _overlap(self, bb) -> float:
@@ -335,7 +335,7 @@ class _Placer:
 def _sheet(rp, cv, rows, rid, name, units, setup, date, k, n, ve):
     """One sheet: the profile, the band and the title block."""
     plt = pyplot()
-    L, E = units.length, units.length_label
+    L = units.length
     lay = setup["layout"]
     w, h = setup["size_mm"]
     fs = lay["font"]
@@ -372,7 +372,7 @@ def _sheet(rp, cv, rows, rid, name, units, setup, date, k, n, ve):
     from matplotlib.text import Text
 
     for t in fig.findobj(Text):
-        t.set_fontfeatures(NO_LIGATURES)
+        _no_ligatures(t)
     return fig
 
 
@@ -431,12 +431,12 @@ def _draw_stretches(ax, rows: pd.DataFrame, lo: float, hi: float, units) -> list
         else:
             colour, key = UNDETERMINED_GREY, ("undetermined", direction)
             label = f"undetermined (data cannot decide), {arrow}"
-        ax.axvspan(L(a), L(b) + 1e-9, facecolor=_faded(colour, 0.35), hatch=HATCH[direction], hatchcolor=colour,
-                   lw=0, zorder=0.5)
+        ax.axvspan(L(a), L(b) + 1e-9, facecolor=_faded(colour, 0.35), hatch=HATCH[direction], lw=0, zorder=0.5,
+                   **_hatch_colour(colour))
         if key not in seen:
             seen.add(key)
-            handles.append(Patch(facecolor=_faded(colour, 0.35), hatch=HATCH[direction], hatchcolor=colour, lw=0,
-                                 label=label))
+            handles.append(Patch(facecolor=_faded(colour, 0.35), hatch=HATCH[direction], lw=0, label=label,
+                                 **_hatch_colour(colour)))
     hidden = rows[np.isfinite(rows["hidden_from_m"].astype(float)) & np.isfinite(rows["hidden_to_m"].astype(float))]
     for d in hidden.itertuples():
         if d.hidden_to_m < lo or d.hidden_from_m > hi:
@@ -459,6 +459,20 @@ def _draw_stretches(ax, rows: pd.DataFrame, lo: float, hi: float, units) -> list
     return handles
 
 
+def _hatch_colour(colour: str) -> dict:
+    """The keyword that colours a patch's hatching: ``hatchcolor`` where matplotlib has it (3.10
+    on), else the edge colour, which older versions hatch in."""
+    from matplotlib.patches import Patch
+
+    return {"hatchcolor": colour} if hasattr(Patch, "set_hatchcolor") else {"edgecolor": colour}
+
+
+def _no_ligatures(text) -> None:
+    """Ligatures off where matplotlib shapes text with font features (3.11 on)."""
+    if hasattr(text, "set_fontfeatures"):
+        text.set_fontfeatures(NO_LIGATURES)
+
+
 def _faded(colour: str, alpha: float) -> tuple:
     """``colour`` laid over white at ``alpha`` (opaque, so hatching over it stays crisp)."""
     from matplotlib.colors import to_rgb
@@ -470,7 +484,7 @@ def _gridlines(ax, band, setup, units, lo, hi, ylo, yhi, ve, fs) -> None:
     """The profile's elevation grid and the vertical lines at the band's regular ticks."""
     from matplotlib.ticker import MultipleLocator
 
-    L, E = units.length, units.length_label
+    E = units.length_label
     tick = setup["tick"]
     ax.xaxis.set_major_locator(MultipleLocator(tick))
     ystep = _nice_step((yhi - ylo) / 12.0)
