@@ -244,3 +244,23 @@ def test_us_sheets_are_tabloid_in_feet(us_out):
         assert f"K needed {c.k_required:.0f}" in text
     run = json.loads((us_out / "run.json").read_text())
     assert run["profiles_pdf"]["paper"].startswith("Tabloid") and run["profiles_pdf"]["unit"] == "ft"
+
+
+# -------------------------------------------------------------------- paper as set
+@needs_poppler
+def test_paper_as_set_a4(tmp_path_factory):
+    """output.sheet_paper = "A4": ISO 216 A4 landscape, 297 x 210 mm = 841.89 x 595.28 pt, at the
+    smaller sheets' scale of 1:5000; the choice is recorded in run.json."""
+    out = _sheets_run(tmp_path_factory, config='[output]\nsheet_paper = "A4"\n')
+    sizes = _page_sizes(out / "profiles.pdf")
+    for w, h in sizes:
+        assert w == pytest.approx(297 / 25.4 * 72, abs=1) and h == pytest.approx(210 / 25.4 * 72, abs=1)
+    sheets = json.loads((out / "run.json").read_text())["profiles_pdf"]
+    assert sheets["paper"] == "A4 landscape" and "as set" in sheets["paper_choice"]
+    assert sheets["horizontal_scale"] == "1:5000"
+    ev = _evaluated(out)
+    assert len(sizes) == sum(math.ceil(l / sheets["sheet_length"] - 1e-9) for l in ev["length_m"])
+    for i, page in enumerate(_words(out / "profiles.pdf")):
+        assert "1:5000" in page["text"] and "exaggeration" in page["text"], f"page {i + 1}"
+        for x0, y0, x1, y1, w in page["words"]:
+            assert 0 <= x0 and x1 <= page["width"] and 0 <= y0 and y1 <= page["height"], (i + 1, w)
