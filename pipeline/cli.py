@@ -186,6 +186,12 @@ def _print_summary(summary: dict, out: Path, quiet: bool) -> None:
         ("Time", f"{summary.get('total_seconds', 0):.1f} s"),
         ("Output folder", str(out.resolve())),
     ]
+    sheets = summary.get("profiles_pdf")
+    if sheets:
+        rows.append(("Field sheets", f"profiles.pdf, {sheets['pages']} sheet(s), {sheets['paper']} "
+                                     f"({sheets['paper_choice']}), horizontal {sheets['horizontal_scale']}, "
+                                     f"{sheets['sheet_length']:,.0f} {sheets['unit']} a sheet"))
+        rows += [("Field sheets", note) for note in sheets.get("notes", [])]
     for reason, n in r["skipped_by_reason"].items():
         rows.append((f"Skipped ({n})", reason))
     if sys.stdout.isatty():

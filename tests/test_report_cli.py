@@ -87,14 +87,17 @@ def test_report_renders_in_headless_chromium(demo_out, tmp_path):
 
 
 def test_profiles_pdf_pages(demo_pdf_out):
-    """profiles.pdf: one page per evaluated road (longer roads on several sheets of 3 km); the
-    page count read from the PDF's page objects."""
+    """profiles.pdf: each evaluated road on as many sheets as its length needs at the sheets'
+    fixed scale (900 m a sheet on A3 at 1:2500: 360 mm of profile, arithmetic); the page count
+    read from the PDF's page objects."""
     pdf = (demo_pdf_out / "profiles.pdf").read_bytes()
     pages = len(re.findall(rb"/Type\s*/Page[^s]", pdf))
     roads = pd.read_csv(demo_pdf_out / "roads.csv")
     ev = roads[roads["status"] == "evaluated"]
-    expect = int(sum(max(int(np.ceil(l / 3000.0)), 1) for l in ev["length_m"]))
-    assert pages == expect
+    sheets = json.loads((demo_pdf_out / "run.json").read_text())["profiles_pdf"]
+    assert sheets["sheet_length"] == 900.0 and sheets["horizontal_scale"] == "1:2500"
+    expect = int(sum(max(int(np.ceil(l / 900.0)), 1) for l in ev["length_m"]))
+    assert pages == expect == sheets["pages"]
 
 
 @pytest.mark.skipif(PDFTOPPM is None, reason="pdftoppm not installed (.ci/run installs Debian's poppler-utils)")

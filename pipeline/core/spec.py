@@ -85,6 +85,8 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "report_road_profiles": (100, "roads given a long profile in report.html's road-by-road index (roads with "
                                       "deficient stretches first; profiles.pdf has every road)"),
         "profiles_pdf": (False, "also write profiles.pdf, one long profile per road for the field team"),
+        "sheet_paper": ("auto", "paper of profiles.pdf, landscape: 'A3', 'A4', 'tabloid', 'letter', or 'auto' "
+                                "(A3 for metric runs, tabloid for US runs)"),
     },
     "criteria": {
         "set": ("aashto-2018-metric", "criteria set to judge against (sightaudit criteria lists them)"),

@@ -148,6 +148,8 @@ def _range_problem(key: str, value: Any) -> str | None:
         return "must be 'metric' or 'us'"
     elif key == "output.us_foot" and value not in ("ft", "us_ft"):
         return "must be 'ft' (international foot) or 'us_ft' (US survey foot)"
+    elif key == "output.sheet_paper" and value not in ("auto", "A3", "A4", "tabloid", "letter"):
+        return "must be 'auto', 'A3', 'A4', 'tabloid' or 'letter'"
     elif key in ("output.report_curves", "output.report_road_profiles") and value < 0:
         return "must not be negative"
     elif key == "ground.elevation_unit" and value not in ("m", "ft", "us_ft"):

@@ -81,7 +81,8 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None) -> list[d
         _write_report(folder, result, summary, cfg, units, method, pages, futures, failures, roads, road_futures)
     if cfg["output.profiles_pdf"]:
         try:
-            report.write_profiles_pdf(folder / "profiles.pdf", result, units)
+            summary["profiles_pdf"] = report.write_profiles_pdf(folder / "profiles.pdf", result, units,
+                                                                cfg["output.sheet_paper"])
         except Exception as exc:
             (folder / "profiles.pdf").unlink(missing_ok=True)
             failures.append(_failure("profiles.pdf", exc))
