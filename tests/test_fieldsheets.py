@@ -26,7 +26,9 @@ METRIC_STATION = re.compile(r"\b\d+\+\d{3}(\.\d)?\b")
 US_STATION = re.compile(r"\b\d+\+\d{2}(\.\d)?\b")
 
 
-def _sheets_run(tmp_path_factory, *extra, config: str = ""):
+def _sheets_run(tmp_path_factory, *extra, config: str = "", roads: int | None = None):
+    """A run of the bundled sample with field sheets; ``roads``: only the first that many roads
+    (the sheets cost about half a second each, so the runs that check one setting stay small)."""
     from pipeline.cli import main
     from pipeline.core.resources import sample_paths
 
@@ -34,7 +36,13 @@ def _sheets_run(tmp_path_factory, *extra, config: str = ""):
     folder = tmp_path_factory.mktemp("sheets")
     (folder / "c.toml").write_text(config)
     out = folder / "out"
-    code = main(["run", "--roads", str(p["roads"]), "--ground", str(p["dem"]), "--structures", str(p["structures"]),
+    roads_file = p["roads"]
+    if roads is not None:
+        import geopandas as gpd
+
+        roads_file = folder / "roads.gpkg"
+        gpd.read_file(p["roads"]).head(roads).to_file(roads_file)
+    code = main(["run", "--roads", str(roads_file), "--ground", str(p["dem"]), "--structures", str(p["structures"]),
                  "--junctions", str(p["junctions"]), "--config", str(folder / "c.toml"), "--out", str(out), "--quiet",
                  "--profiles-pdf", *extra])
     assert code == 0
@@ -50,7 +58,7 @@ def metric_out(tmp_path_factory):
 def us_out(tmp_path_factory):
     # the sample's speeds are in km/h, read as such in this US customary run
     return _sheets_run(tmp_path_factory, "--units", "us",
-                       config='[roads]\nspeed_unit = "kmh"\nspeed_column = "speed_kmh"\n')
+                       config='[roads]\nspeed_unit = "kmh"\nspeed_column = "speed_kmh"\n', roads=3)
 
 
 def _page_sizes(pdf) -> list[tuple[float, float]]:
@@ -251,7 +259,7 @@ def test_us_sheets_are_tabloid_in_feet(us_out):
 def test_paper_as_set_a4(tmp_path_factory):
     """output.sheet_paper = "A4": ISO 216 A4 landscape, 297 x 210 mm = 841.89 x 595.28 pt, at the
     smaller sheets' scale of 1:5000; the choice is recorded in run.json."""
-    out = _sheets_run(tmp_path_factory, config='[output]\nsheet_paper = "A4"\n')
+    out = _sheets_run(tmp_path_factory, config='[output]\nsheet_paper = "A4"\n', roads=2)
     sizes = _page_sizes(out / "profiles.pdf")
     for w, h in sizes:
         assert w == pytest.approx(297 / 25.4 * 72, abs=1) and h == pytest.approx(210 / 25.4 * 72, abs=1)
