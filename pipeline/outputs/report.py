@@ -118,6 +118,12 @@ def _table(frame: pd.DataFrame, numeric_nd: dict[str, int], raw: tuple[str, ...]
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
+def _words(v, units) -> str:
+    """Words written by the stages (in metric units) as HTML in the run's units
+    (:meth:`pipeline.core.units.OutputUnits.text`); empty for a missing value."""
+    return _e(units.text(v)) if isinstance(v, str) else _e(v)
+
+
 def _facts(lines, escape: bool = True) -> str:
     """(heading, text) lines as a two-column facts table."""
     return "".join(f"<tr><td>{_e(k)}</td><td>{_e(v) if escape else v}</td></tr>" for k, v in lines)
@@ -458,7 +464,7 @@ def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None, ancho
             f"short by ({E})": L(top["shortfall_m"]), "severity": top["severity"],
             "hidden hazard": top["hidden_hazard"], "score": top["priority_score"],
             "verdict": top["verdict"], "P(deficient)": top["p_deficient"], "data confidence": top["confidence"],
-            "treatment hint": top["treatment_hint"],
+            "treatment hint": top["treatment_hint"].map(lambda v: units.text(v) if isinstance(v, str) else v),
         })
         nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "P(deficient)": 2}
         parts.append(_table(shown, nd, raw=("curve", "road")))
@@ -505,7 +511,7 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
                           f"{E}/%"),
         ("PVC / PVI / PVT", f"{L(c['pvc_m']):,.0f} / {L(c['pvi_m']):,.0f} / {L(c['pvt_m']):,.0f} {E}"),
         ("grades", f"{c['g1_pct']:+.2f} % to {c['g2_pct']:+.2f} %"),
-        ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S}, {_e(worst['speed_basis'])}"),
+        ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S}, {_words(worst['speed_basis'], units)}"),
         ("SSD needed / headlight sight distance" if sag else "SSD needed / sight distance available",
          f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} &plusmn; "
          f"{L(c['sight_sd_m']):.0f} {E} ({worst['direction']} chainage"
@@ -513,7 +519,7 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
         ("speed the headlight sight supports" if sag else "speed the sight supports",
          f"{V(worst['supported_speed_kmh']):.0f} {S} ({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
         ("verdict", f"{_e(c['verdict'])}: probability of a shortfall {c['p_deficient']:.2f}, confidence "
-                    f"{_e(c['confidence'])}" + (f"; to settle it: {_e(c['to_settle'])}"
+                    f"{_e(c['confidence'])}" + (f"; to settle it: {_words(c['to_settle'], units)}"
                                                  if isinstance(c.get("to_settle"), str) else "")),
         ("uncertainty (1 sd)", f"K {L(c['k']):.1f} &plusmn; {L(c['k_sd']):.1f} {E}/%, sight distance "
                                f"&plusmn; {L(c['sight_sd_m']):.0f} {E}, A &plusmn; {c['a_sd_pct']:.2f} %, "
@@ -522,13 +528,13 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
     if c["kind"] == "crest":
         detail = worst.get("hazard_detail")
         shown = worst["hidden_hazard"] != "none" and isinstance(detail, str) and detail.strip()
-        facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {_e(detail)}" if shown else "")))
+        facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {_words(detail, units)}" if shown else "")))
     return facts + [
         ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
                                  zip(rows["direction"], rows["from_m"], rows["to_m"]))),
         ("fit", f"RMSE {L(c['fit_rmse_m']):.3f} {E}, confidence of the fit {c['fit_confidence']}"
-                + (f" ({_e(c['flags'])})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
-        ("first thought on treatment", _e(worst["treatment_hint"])),
+                + (f" ({_words(c['flags'], units)})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
+        ("first thought on treatment", _words(worst["treatment_hint"], units)),
     ]
 
 
@@ -569,7 +575,7 @@ def _road_block(road: pd.Series, anchor: str, cv: pd.DataFrame, rows: pd.DataFra
                 f"</p></section>")
     particulars = [str(road["road_class"]) if isinstance(road["road_class"], str) else "class not given",
                    f"{L(road['length_m']):,.0f} {E} long",
-                   f"judged at {V(road['speed_kmh']):.0f} {S}, {road['speed_basis']}"
+                   f"judged at {V(road['speed_kmh']):.0f} {S}, {units.text(str(road['speed_basis']))}"
                    if pd.notna(road["speed_kmh"]) else "no speed",
                    f"AADT {float(road['aadt']):,.0f}" if pd.notna(road["aadt"]) else "AADT not given",
                    f"{len(cv)} vertical curve(s), {int((cv['verdict'] == 'deficient').sum())} deficient, "
@@ -637,14 +643,15 @@ def _notes_section(result, summary: dict, units) -> list[str]:
     parts = ["<h2 id='notes'>Data notes and skipped roads</h2>"]
     skipped = [x for x in summary["roads"]["skipped_roads"]]
     if skipped:
-        parts.append(_table(pd.DataFrame(skipped).rename(columns={"road_id": "road", "reason": "why skipped"}), {}))
+        parts.append(_table(units.table(pd.DataFrame(skipped)).rename(
+            columns={"road_id": "road", "reason": "why skipped"}), {}))
     else:
         parts.append("<p>No road was skipped.</p>")
     notes = result.data_notes()
     if len(notes):
         nt = units.table(notes)
         parts.append(_table(nt, {c: 0 for c in nt.columns if c.endswith(("_m", "_ft"))}))
-    parts += [f"<p class='small'>{_e(n)}</p>" for n in summary.get("notes", [])]
+    parts += [f"<p class='small'>{_words(n, units)}</p>" for n in summary.get("notes", [])]
     return parts
 
 
