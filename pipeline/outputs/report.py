@@ -28,8 +28,9 @@ from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, network_map, png_data_uri, road_figure
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
+from .sites import site_text, worst_sites
 from .tables import curves_table, deficiencies_table
-from .workbook import _site_text, brief_lines, worst_sites
+from .workbook import brief_lines
 
 __all__ = ["SEVERITY_STYLE", "build_report", "curve_anchor", "curve_figure", "curve_png", "data_quality_html",
            "network_map", "png_data_uri", "report_pages", "road_anchor", "road_figure", "road_pages", "road_png",
@@ -382,7 +383,7 @@ def _brief_section(result, summary: dict, units, paged: set, anchors: dict) -> l
     """The worst sites in plain sentences, and what this audit can and cannot say.
 
     The counts and the site sentences are the workbook's (:func:`pipeline.outputs.workbook.brief_lines`,
-    :func:`~pipeline.outputs.workbook.worst_sites`), with where each site is, the speed its sight
+    :func:`pipeline.outputs.sites.worst_sites`), with where each site is, the speed its sight
     supports and how sure the verdict is added; what the data can and cannot support is
     :func:`data_quality_html`.
     """
@@ -400,7 +401,7 @@ def _brief_section(result, summary: dict, units, paged: set, anchors: dict) -> l
             rank = (f"<a href='#{curve_anchor(rid, cno)}'>Rank {int(r['rank'])}</a>" if (rid, cno) in paged
                     else f"Rank {int(r['rank'])}")
             road = f" <a class='small' href='#{anchors[rid]}'>(road {_e(rid)})</a>" if rid in anchors else ""
-            items.append(f"<li><b>{rank}</b>: {_e(units.text(_site_text(r)))} {_e(_where_text(r, units))}{road}</li>")
+            items.append(f"<li><b>{rank}</b>: {_e(site_text(r))} {_e(_where_text(r, units))}{road}</li>")
         parts.append(f"<ol class='sites'>{''.join(items)}</ol>")
     else:
         parts.append("<p>No curve on the audited roads is deficient at these criteria.</p>")
