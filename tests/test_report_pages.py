@@ -277,6 +277,36 @@ def test_road_profiles_shade_every_stretch(demo_pages):
         pyplot().close(fig)
 
 
+def test_road_png_kept_figure_draws_each_road_afresh(demo_pages):
+    """The road profiles are drawn one after another into one kept figure as palette PNGs: each
+    is the picture a fresh figure gives (matplotlib's own full-colour PNG as the reference), with
+    nothing left over from the road before (a leftover curve label or span would differ by a
+    whole colour), and at most 256 colours (Pillow reads the PNG back)."""
+    import base64
+    import io
+
+    from PIL import Image
+
+    from pipeline.outputs.figures import png_data_uri, road_figure
+    from pipeline.outputs.report import ROAD_PNG_DPI, road_png
+
+    _, _, roads = demo_pages
+    assert len(roads) >= 2
+
+    def pixels(uri):
+        return Image.open(io.BytesIO(base64.b64decode(uri.split(",", 1)[1])))
+
+    for page in (roads[0], roads[1], roads[0]):  # the first again, after another road in the kept figure
+        kept = pixels(road_png(page["spec"]))
+        fresh = pixels(png_data_uri(road_figure(**page["spec"]), dpi=ROAD_PNG_DPI))
+        assert kept.mode == "P" and kept.size == fresh.size
+        diff = np.abs(np.asarray(kept.convert("RGB"), dtype=int) - np.asarray(fresh.convert("RGB"), dtype=int))
+        # quantising to 256 colours moves a pixel by a few levels (common practice, no source: 32
+        # of 255 is far below a changed colour, e.g. severity shade against white)
+        assert diff.max() <= 32, (page["road_id"], diff.max())
+        assert (diff.max(axis=2) > 8).mean() < 0.01, page["road_id"]  # a few edge pixels of antialiased lines
+
+
 def test_crest_and_sag_pages_carry_their_own_rows(demo_out, html):
     """Crest pages say what is hidden beyond the crest; sag pages do not, and speak of headlight
     sight (AASHTO Green Book ch. 3: sag curves are governed by headlight sight distance). Every page
