@@ -277,6 +277,31 @@ def test_road_profiles_shade_every_stretch(demo_pages):
         pyplot().close(fig)
 
 
+def test_us_curve_page_and_inventory_convert_the_stages_sentences(demo_pages):
+    """A treatment hint written by the SQL in km/h (the reconstruction hint, TRB SR 214's 20 mph
+    gap, 32 km/h in the metric settings) and a hazard written in metres read in mph and feet on a
+    US run's curve page and ranked table (statute mile 1609.344 m and foot 0.3048 m, from PROJ)."""
+    from pipeline.core.units import OutputUnits
+    from pipeline.outputs.report import _curve_facts, _inventory_section
+
+    r, pages, _ = demo_pages
+    page = pages[0]
+    hint = "consider reconstructing the crest (supported speed more than 32 km/h below the speed judged at)"
+    rows = page["rows"].assign(treatment_hint=hint, hazard_detail="junction with WV-05 at 2350 m")
+    rows = rows.assign(hidden_hazard="junction")
+    worst = rows.loc[rows["rank"].idxmin()]
+    curve = page["curve"].copy()
+    curve["to_settle"], curve["flags"] = "a DEM of 2 m or finer", "L = 70 m is within two standard deviations (75 m)"
+    us = OutputUnits("us")
+    facts = dict(_curve_facts(curve, rows, worst, us))
+    assert "more than 20 mph below" in facts["first thought on treatment"]
+    assert facts["hidden beyond the crest"] == "junction: junction with WV-05 at 7,710 ft"
+    assert "a DEM of 7 ft or finer" in facts["verdict"]
+    assert "(L = 230 ft is within two standard deviations (246 ft))" in facts["fit"]
+    table = "".join(_inventory_section(r.evaluation.inventory.head(3).assign(treatment_hint=hint), us))
+    assert "more than 20 mph below" in table and "km/h" not in table
+
+
 def test_road_png_kept_figure_draws_each_road_afresh(demo_pages):
     """The road profiles are drawn one after another into one kept figure as palette PNGs: each
     is the picture a fresh figure gives (matplotlib's own full-colour PNG as the reference), with
