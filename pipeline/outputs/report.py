@@ -581,7 +581,8 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
     if c["kind"] == "crest":
         detail = worst.get("hazard_detail")
         shown = worst["hidden_hazard"] != "none" and isinstance(detail, str) and detail.strip()
-        facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {_words(detail, units)}" if shown else "")))
+        facts.append(("hidden beyond the crest",
+                      f"{worst['hidden_hazard']}" + (f": {_words(detail, units)}" if shown else "")))
     return facts + [
         ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
                                  zip(rows["direction"], rows["from_m"], rows["to_m"]))),
