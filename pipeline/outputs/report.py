@@ -228,7 +228,11 @@ def road_pages(result, cfg, units) -> list[dict]:
 def road_png(spec: dict) -> str:
     """One road's long profile for the road-by-road index as an inline PNG.
 
-    A top-level function, so that a pool of processes can draw the roads side by side.
+    A top-level function, so that a pool of processes can draw the roads side by side. Each
+    process (each thread) draws its roads one after another into one kept figure, at
+    :data:`ROAD_PNG_DPI`, and writes them as 256-colour PNGs (:func:`_palette_png_uri`): about a
+    fifth less drawing time per road than a new figure and a full-colour PNG each, a quarter of
+    the bytes, and the same picture.
 
     Parameters
     ----------
