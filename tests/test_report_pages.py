@@ -12,6 +12,7 @@ import shutil
 import subprocess
 from html.parser import HTMLParser
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -102,12 +103,11 @@ def test_brief_names_the_top_ranked_site(demo_out, html):
 
 
 def test_brief_sites_are_one_per_curve_in_rank_order(demo_out, html):
-    """Each worst site is one curve, the five best-ranked deficient ones in rank order (the
-    workbook's worst_sites as the reference)."""
-    from pipeline.outputs.workbook import worst_sites
-
+    """Each worst site is one curve, the five best-ranked deficient ones in rank order (restated
+    here in pandas from deficiencies.csv as the reference)."""
     d = pd.read_csv(demo_out / "deficiencies.csv")
-    expect = [int(r) for r in worst_sites(d)["rank"]]
+    expect = [int(r) for r in d[d["verdict"] == "deficient"].sort_values("rank")
+              .drop_duplicates(["road_id", "curve_no"]).head(5)["rank"]]
     brief = _between(html, "<h2 id='brief'>")
     got = [int(r) for r in re.findall(r">Rank (\d+)</", brief)]
     assert got == expect and len(got) == min(5, len(d[d["verdict"] == "deficient"].drop_duplicates(
@@ -275,6 +275,61 @@ def test_road_profiles_shade_every_stretch(demo_pages):
         rows = inv[inv["road_id"] == page["road_id"]]
         assert sorted(s.get_gid() for s in spans) == sorted(f"deficient-{d}" for d in rows["direction"])
         pyplot().close(fig)
+
+
+def test_us_curve_page_and_inventory_convert_the_stages_sentences(demo_pages):
+    """A treatment hint written by the SQL in km/h (the reconstruction hint, TRB SR 214's 20 mph
+    gap, 32 km/h in the metric settings) and a hazard written in metres read in mph and feet on a
+    US run's curve page and ranked table (statute mile 1609.344 m and foot 0.3048 m, from PROJ)."""
+    from pipeline.core.units import OutputUnits
+    from pipeline.outputs.report import _curve_facts, _inventory_section
+
+    r, pages, _ = demo_pages
+    page = pages[0]
+    hint = "consider reconstructing the crest (supported speed more than 32 km/h below the speed judged at)"
+    rows = page["rows"].assign(treatment_hint=hint, hazard_detail="junction with WV-05 at 2350 m")
+    rows = rows.assign(hidden_hazard="junction")
+    worst = rows.loc[rows["rank"].idxmin()]
+    curve = page["curve"].copy()
+    curve["to_settle"], curve["flags"] = "a DEM of 2 m or finer", "L = 70 m is within two standard deviations (75 m)"
+    us = OutputUnits("us")
+    facts = dict(_curve_facts(curve, rows, worst, us))
+    assert "more than 20 mph below" in facts["first thought on treatment"]
+    assert facts["hidden beyond the crest"] == "junction: junction with WV-05 at 7,710 ft"
+    assert "a DEM of 7 ft or finer" in facts["verdict"]
+    assert "(L = 230 ft is within two standard deviations (246 ft))" in facts["fit"]
+    table = "".join(_inventory_section(r.evaluation.inventory.head(3).assign(treatment_hint=hint), us))
+    assert "more than 20 mph below" in table and "km/h" not in table
+
+
+def test_road_png_kept_figure_draws_each_road_afresh(demo_pages):
+    """The road profiles are drawn one after another into one kept figure as palette PNGs: each
+    is the picture a fresh figure gives (matplotlib's own full-colour PNG as the reference), with
+    nothing left over from the road before (a leftover curve label or span would differ by a
+    whole colour), and at most 256 colours (Pillow reads the PNG back)."""
+    import base64
+    import io
+
+    from PIL import Image
+
+    from pipeline.outputs.figures import png_data_uri, road_figure
+    from pipeline.outputs.report import ROAD_PNG_DPI, road_png
+
+    _, _, roads = demo_pages
+    assert len(roads) >= 2
+
+    def pixels(uri):
+        return Image.open(io.BytesIO(base64.b64decode(uri.split(",", 1)[1])))
+
+    for page in (roads[0], roads[1], roads[0]):  # the first again, after another road in the kept figure
+        kept = pixels(road_png(page["spec"]))
+        fresh = pixels(png_data_uri(road_figure(**page["spec"]), dpi=ROAD_PNG_DPI))
+        assert kept.mode == "P" and kept.size == fresh.size
+        diff = np.abs(np.asarray(kept.convert("RGB"), dtype=int) - np.asarray(fresh.convert("RGB"), dtype=int))
+        # quantising to 256 colours moves a pixel by a few levels (common practice, no source: 32
+        # of 255 is far below a changed colour, e.g. severity shade against white)
+        assert diff.max() <= 32, (page["road_id"], diff.max())
+        assert (diff.max(axis=2) > 8).mean() < 0.01, page["road_id"]  # a few edge pixels of antialiased lines
 
 
 def test_crest_and_sag_pages_carry_their_own_rows(demo_out, html):

@@ -156,3 +156,27 @@ def test_us_validate_in_feet_and_mph(us_inputs, samples, run_cli):
     shortest_m = float(re.search(r"shortest (\d+) m", metric).group(1))
     shortest_ft = float(re.search(r"shortest (\d+) ft", out).group(1))
     assert shortest_ft == pytest.approx(shortest_m / 0.3048, abs=2.0)  # both rounded to whole units
+
+
+def _page_text(out) -> str:
+    """The whole report as a reader sees it: tags, the inline style and script dropped, entities
+    decoded; the CRS name (an EPSG definition written as given) left out."""
+    page = (out / "report.html").read_text(encoding="utf-8")
+    page = re.sub(r"<(style|script)\b.*?</\1>", " ", page, flags=re.S)
+    page = re.sub(r"src='data:[^']*'", "", page)
+    text = html.unescape(re.sub(r"<[^>]+>", " ", page))
+    return re.sub(r"EPSG:\d+[^;.)]*", " ", text)
+
+
+def test_us_report_has_no_metric_text_anywhere(us_run):
+    """Every word of a US run's report.html (the brief, the curve pages, the road sections, the
+    notes) and the text columns of deficiencies.csv and curves.csv: lengths in ft and speeds in mph,
+    no metre or km/h left (common practice, no source)."""
+    text = _page_text(us_run)
+    assert " ft" in text and " mph" in text
+    assert _metric_words(text) == []
+    for name in ("deficiencies.csv", "curves.csv"):
+        table = pd.read_csv(us_run / name)
+        words = " ".join(" ".join(table[c].dropna().astype(str)) for c in table.columns
+                         if table[c].dtype == object)
+        assert _metric_words(words) == [], name

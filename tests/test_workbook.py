@@ -131,7 +131,18 @@ def test_summary_sheet_for_a_memo(demo_out):
     first = [r[1] for r in rows if r and r[0] == "Worst site, rank 1"][0]
     assert first.startswith(f"{top['road_id']} {top['road_name']}, curve {top['curve_no']}")
     assert len([r for r in rows if r and str(r[0]).startswith("Worst site")]) == 5
+    assert brief.endswith(" The five worst sites, in the order to treat them:")
     assert sum(1 for r in rows if r and r[0] == "Caution" and "licensed engineer" in r[1]) == 2
+
+
+def test_worst_sites_sentence_in_plain_words():
+    """The sentence before the worst sites, counts under ten in words (common style, no source)."""
+    from pipeline.outputs.sites import number_word, worst_sites_heading
+
+    assert [number_word(n) for n in (1, 5, 9, 10, 1200)] == ["one", "five", "nine", "10", "1,200"]
+    assert worst_sites_heading(5) == "The five worst sites, in the order to treat them:"
+    assert worst_sites_heading(1) == "The worst site:"
+    assert worst_sites_heading(0) == ""
 
 
 @pytest.fixture(scope="module")

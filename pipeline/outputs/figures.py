@@ -265,7 +265,7 @@ def _hidden_marks(ax, p: pd.DataFrame, rows: pd.DataFrame, worst: pd.Series, L) 
 
 # ------------------------------------------------------------------- road figure
 def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, units, title: str, lo: float,
-                hi: float, size: tuple[float, float] = (11.0, 4.6)):
+                hi: float, size: tuple[float, float] = (11.0, 4.6), fig=None):
     """A road's long profile between two chainages, for the field sheets and the report's road index.
 
     Parameters
@@ -285,15 +285,23 @@ def road_figure(prof: pd.DataFrame, curves: pd.DataFrame, rows: pd.DataFrame, un
         The chainages shown (m).
     size : (float, float), default (11.0, 4.6)
         The figure's width and height (inches).
+    fig : matplotlib.figure.Figure, optional
+        A figure of that size to draw into, cleared first (one a drawing process keeps for all its
+        roads, which spares making a figure per road); a new one when not given.
 
     Returns
     -------
     matplotlib.figure.Figure
+        ``fig`` when given.
     """
     plt = pyplot()
     L, E = units.length, units.length_label
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
-    fig, ax = plt.subplots(figsize=size)
+    if fig is None:
+        fig, ax = plt.subplots(figsize=size)
+    else:
+        fig.clear()
+        ax = fig.add_subplot()
     fig.subplots_adjust(left=0.07, right=0.75, bottom=0.12 * 4.6 / size[1], top=1 - 0.08 * 4.6 / size[1])
     ax.plot(L(p["chainage_m"]), L(p["ground_z_m"]), ".", ms=2, color="#7A7A7A", label="ground samples")
     ax.plot(L(p["chainage_m"]), L(p["fitted_z_m"]), "-", color="black", lw=1.3, label="recovered alignment")

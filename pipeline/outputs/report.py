@@ -28,9 +28,11 @@ from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
 from .mapview import network_map_svg
+from .figures import pyplot as figures_pyplot
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
+from .sites import site_text, worst_sites
 from .tables import curves_table, deficiencies_table
-from .workbook import _site_text, brief_lines, worst_sites
+from .workbook import brief_lines
 
 __all__ = ["SEVERITY_STYLE", "build_report", "curve_anchor", "curve_figure", "curve_png", "data_quality_html",
            "network_map_svg", "png_data_uri", "report_pages", "road_anchor", "road_figure", "road_pages", "road_png",
@@ -117,6 +119,12 @@ def _table(frame: pd.DataFrame, numeric_nd: dict[str, int], raw: tuple[str, ...]
                 cells.append(f"<td>{_e(r[c])}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def _words(v, units) -> str:
+    """Words written by the stages (in metric units) as HTML in the run's units
+    (:meth:`pipeline.core.units.OutputUnits.text`); empty for a missing value."""
+    return _e(units.text(v)) if isinstance(v, str) else _e(v)
 
 
 def _facts(lines, escape: bool = True) -> str:
@@ -221,7 +229,11 @@ def road_pages(result, cfg, units) -> list[dict]:
 def road_png(spec: dict) -> str:
     """One road's long profile for the road-by-road index as an inline PNG.
 
-    A top-level function, so that a pool of processes can draw the roads side by side.
+    A top-level function, so that a pool of processes can draw the roads side by side. Each
+    process (each thread) draws its roads one after another into one kept figure, at
+    :data:`ROAD_PNG_DPI`, and writes them as 256-colour PNGs (:func:`_palette_png_uri`): about a
+    fifth less drawing time per road than a new figure and a full-colour PNG each, a quarter of
+    the bytes, and the same picture.
 
     Parameters
     ----------
@@ -233,7 +245,58 @@ def road_png(spec: dict) -> str:
     str
         A ``data:image/png;base64,...`` URI.
     """
-    return png_data_uri(road_figure(**spec), dpi=90)
+    fig = road_figure(**spec, fig=_kept_figure(tuple(spec.get("size", (11.0, 4.6))), dpi=ROAD_PNG_DPI))
+    return _palette_png_uri(fig)
+
+
+ROAD_PNG_DPI = 90  # the road profiles' resolution: 945 by 288 pixels at their 10.5 by 3.2 inches
+_KEPT_FIGURES: dict = {}
+
+
+def _kept_figure(size: tuple[float, float], dpi: int):
+    """A figure of this size kept for the calling thread, to draw one road after another into
+    (:func:`road_figure` clears it first); made once, outside pyplot, so it is never left open
+    there."""
+    import threading
+
+    key = (threading.get_ident(), size, dpi)
+    fig = _KEPT_FIGURES.get(key)
+    if fig is None:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+
+        figures_pyplot()  # the figures' font sizes, before the figure takes them
+        fig = _KEPT_FIGURES[key] = Figure(figsize=size, dpi=dpi)
+        FigureCanvasAgg(fig)
+    return fig
+
+
+def _palette_png_uri(fig) -> str:
+    """A figure as an inline PNG of at most 256 colours (a line drawing has few), which is about
+    a quarter the size of the full-colour PNG and looks the same (no channel off by more than a
+    few levels in 255).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        A figure on the Agg canvas, drawn at its own dpi; not closed.
+
+    Returns
+    -------
+    str
+        A ``data:image/png;base64,...`` URI.
+    """
+    import base64
+    import io
+
+    from PIL import Image
+
+    fig.canvas.draw()
+    w, h = fig.canvas.get_width_height()
+    rgb = Image.frombuffer("RGBA", (w, h), fig.canvas.buffer_rgba(), "raw", "RGBA", 0, 1).convert("RGB")
+    buf = io.BytesIO()
+    rgb.quantize(colors=256, method=Image.Quantize.FASTOCTREE).save(buf, format="png")
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
 
 def data_quality_html(dq: dict | None, units) -> str:
@@ -377,7 +440,7 @@ def _brief_section(result, summary: dict, units, paged: set, anchors: dict) -> l
     """The worst sites in plain sentences, and what this audit can and cannot say.
 
     The counts and the site sentences are the workbook's (:func:`pipeline.outputs.workbook.brief_lines`,
-    :func:`~pipeline.outputs.workbook.worst_sites`), with where each site is, the speed its sight
+    :func:`pipeline.outputs.sites.worst_sites`), with where each site is, the speed its sight
     supports and how sure the verdict is added; what the data can and cannot support is
     :func:`data_quality_html`.
     """
@@ -395,7 +458,7 @@ def _brief_section(result, summary: dict, units, paged: set, anchors: dict) -> l
             rank = (f"<a href='#{curve_anchor(rid, cno)}'>Rank {int(r['rank'])}</a>" if (rid, cno) in paged
                     else f"Rank {int(r['rank'])}")
             road = f" <a class='small' href='#{anchors[rid]}'>(road {_e(rid)})</a>" if rid in anchors else ""
-            items.append(f"<li><b>{rank}</b>: {_e(units.text(_site_text(r)))} {_e(_where_text(r, units))}{road}</li>")
+            items.append(f"<li><b>{rank}</b>: {_e(site_text(r))} {_e(_where_text(r, units))}{road}</li>")
         parts.append(f"<ol class='sites'>{''.join(items)}</ol>")
     else:
         parts.append("<p>No curve on the audited roads is deficient at these criteria.</p>")
@@ -461,7 +524,7 @@ def _inventory_section(inv: pd.DataFrame, units, paged: set | None = None, ancho
             f"short by ({E})": L(top["shortfall_m"]), "severity": top["severity"],
             "hidden hazard": top["hidden_hazard"], "score": top["priority_score"],
             "verdict": top["verdict"], "P(deficient)": top["p_deficient"], "data confidence": top["confidence"],
-            "treatment hint": top["treatment_hint"],
+            "treatment hint": top["treatment_hint"].map(lambda v: units.text(v) if isinstance(v, str) else v),
         })
         nd = {c: 0 for c in shown.columns if "(" in c} | {"score": 1, "rank": 0, "P(deficient)": 2}
         parts.append(_table(shown, nd, raw=("curve", "road")))
@@ -508,7 +571,7 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
                           f"{E}/%"),
         ("PVC / PVI / PVT", f"{L(c['pvc_m']):,.0f} / {L(c['pvi_m']):,.0f} / {L(c['pvt_m']):,.0f} {E}"),
         ("grades", f"{c['g1_pct']:+.2f} % to {c['g2_pct']:+.2f} %"),
-        ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S}, {_e(worst['speed_basis'])}"),
+        ("speed judged at", f"{V(worst['speed_kmh']):.0f} {S}, {_words(worst['speed_basis'], units)}"),
         ("SSD needed / headlight sight distance" if sag else "SSD needed / sight distance available",
          f"{L(worst['ssd_required_m']):.0f} / {L(worst['sight_available_m']):.0f} &plusmn; "
          f"{L(c['sight_sd_m']):.0f} {E} ({worst['direction']} chainage"
@@ -516,7 +579,7 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
         ("speed the headlight sight supports" if sag else "speed the sight supports",
          f"{V(worst['supported_speed_kmh']):.0f} {S} ({worst['severity']}, {V(worst['speed_gap_kmh']):.0f} {S} short)"),
         ("verdict", f"{_e(c['verdict'])}: probability of a shortfall {c['p_deficient']:.2f}, confidence "
-                    f"{_e(c['confidence'])}" + (f"; to settle it: {_e(c['to_settle'])}"
+                    f"{_e(c['confidence'])}" + (f"; to settle it: {_words(c['to_settle'], units)}"
                                                  if isinstance(c.get("to_settle"), str) else "")),
         ("uncertainty (1 sd)", f"K {L(c['k']):.1f} &plusmn; {L(c['k_sd']):.1f} {E}/%, sight distance "
                                f"&plusmn; {L(c['sight_sd_m']):.0f} {E}, A &plusmn; {c['a_sd_pct']:.2f} %, "
@@ -525,13 +588,14 @@ def _curve_facts(c: pd.Series, rows: pd.DataFrame, worst: pd.Series, units) -> l
     if c["kind"] == "crest":
         detail = worst.get("hazard_detail")
         shown = worst["hidden_hazard"] != "none" and isinstance(detail, str) and detail.strip()
-        facts.append(("hidden beyond the crest", f"{worst['hidden_hazard']}" + (f": {_e(detail)}" if shown else "")))
+        facts.append(("hidden beyond the crest",
+                      f"{worst['hidden_hazard']}" + (f": {_words(detail, units)}" if shown else "")))
     return facts + [
         ("stretches", "; ".join(f"{d} {L(a):,.0f}-{L(b):,.0f} {E}" for d, a, b in
                                  zip(rows["direction"], rows["from_m"], rows["to_m"]))),
         ("fit", f"RMSE {L(c['fit_rmse_m']):.3f} {E}, confidence of the fit {c['fit_confidence']}"
-                + (f" ({_e(c['flags'])})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
-        ("first thought on treatment", _e(worst["treatment_hint"])),
+                + (f" ({_words(c['flags'], units)})" if isinstance(c.get("flags"), str) and c["flags"] else "")),
+        ("first thought on treatment", _words(worst["treatment_hint"], units)),
     ]
 
 
@@ -572,7 +636,7 @@ def _road_block(road: pd.Series, anchor: str, cv: pd.DataFrame, rows: pd.DataFra
                 f"</p></section>")
     particulars = [str(road["road_class"]) if isinstance(road["road_class"], str) else "class not given",
                    f"{L(road['length_m']):,.0f} {E} long",
-                   f"judged at {V(road['speed_kmh']):.0f} {S}, {road['speed_basis']}"
+                   f"judged at {V(road['speed_kmh']):.0f} {S}, {units.text(str(road['speed_basis']))}"
                    if pd.notna(road["speed_kmh"]) else "no speed",
                    f"AADT {float(road['aadt']):,.0f}" if pd.notna(road["aadt"]) else "AADT not given",
                    f"{len(cv)} vertical curve(s), {int((cv['verdict'] == 'deficient').sum())} deficient, "
@@ -640,14 +704,15 @@ def _notes_section(result, summary: dict, units) -> list[str]:
     parts = ["<h2 id='notes'>Data notes and skipped roads</h2>"]
     skipped = [x for x in summary["roads"]["skipped_roads"]]
     if skipped:
-        parts.append(_table(pd.DataFrame(skipped).rename(columns={"road_id": "road", "reason": "why skipped"}), {}))
+        parts.append(_table(units.table(pd.DataFrame(skipped)).rename(
+            columns={"road_id": "road", "reason": "why skipped"}), {}))
     else:
         parts.append("<p>No road was skipped.</p>")
     notes = result.data_notes()
     if len(notes):
         nt = units.table(notes)
         parts.append(_table(nt, {c: 0 for c in nt.columns if c.endswith(("_m", "_ft"))}))
-    parts += [f"<p class='small'>{_e(n)}</p>" for n in summary.get("notes", [])]
+    parts += [f"<p class='small'>{_words(n, units)}</p>" for n in summary.get("notes", [])]
     return parts
 
 

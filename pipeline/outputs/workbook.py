@@ -19,6 +19,7 @@ import pandas as pd
 
 from .method import CAUTION_TEXT, data_quality_facts
 from .report_style import SEVERITY_COLOURS
+from .sites import site_text, worst_sites, worst_sites_heading
 from .tables import column_note
 
 
@@ -153,7 +154,7 @@ def brief_lines(sheets: dict[str, pd.DataFrame]) -> list[tuple[str, str]]:
     list of (str, str)
         ``In brief`` (roads and length audited, curves found, deficient and
         undetermined, deficient stretches and their length by severity), one line per
-        worst site (:func:`worst_sites`) and the caution.
+        worst site (:func:`pipeline.outputs.sites.worst_sites`) and the caution.
     """
     defs = sheets.get("Deficiencies", pd.DataFrame())
     curves = sheets.get("Curves", pd.DataFrame())
@@ -173,31 +174,10 @@ def brief_lines(sheets: dict[str, pd.DataFrame]) -> list[tuple[str, str]]:
                 + ", ".join(f"{by_sev[s]:.2f} {dist} {s}" for s, _, _ in SEVERITY_SHADES) + ".")
     sites = worst_sites(defs)
     if len(sites):
-        text.append(f"The worst {_count(len(sites), 'site')}, first to fix first, follow.")
+        text.append(worst_sites_heading(len(sites)))
     lines = [("In brief", " ".join(text))]
-    lines += [(f"Worst site, rank {int(r['rank'])}", _site_text(r)) for _, r in sites.iterrows()]
+    lines += [(f"Worst site, rank {int(r['rank'])}", site_text(r)) for _, r in sites.iterrows()]
     return lines + [("Caution", CAUTION_TEXT)]
-
-
-def worst_sites(defs: pd.DataFrame, n: int = 5) -> pd.DataFrame:
-    """The worst deficient sites: one row per curve (its best-ranked direction), by rank.
-
-    Parameters
-    ----------
-    defs : pandas.DataFrame
-        The Deficiencies sheet (``rank``, ``road_id``, ``curve_no``, ``verdict``, ...).
-    n : int, optional
-        How many sites.
-
-    Returns
-    -------
-    pandas.DataFrame
-        At most ``n`` rows of ``defs`` whose verdict is deficient, rank 1 first.
-    """
-    if not len(defs) or not {"rank", "road_id", "curve_no"} <= set(defs.columns):
-        return defs.iloc[0:0]
-    d = defs[defs["verdict"] == "deficient"] if "verdict" in defs else defs
-    return d.sort_values("rank").drop_duplicates(["road_id", "curve_no"]).head(n)
 
 
 def _network_row(sheets: dict[str, pd.DataFrame]) -> dict:
@@ -219,25 +199,6 @@ def _network_row(sheets: dict[str, pd.DataFrame]) -> dict:
 
 def _count(n: int, word: str, plural: str = "s") -> str:
     return f"{n} {word}" + ("" if n == 1 else plural)
-
-
-def _site_text(r: pd.Series) -> str:
-    """One worst site in words: road and name, curve, what is hidden, shortfall, treatment hint."""
-    unit = "ft" if "shortfall_ft" in r.index else "m"
-    name = r.get("road_name")
-    road = f"{r['road_id']} {name}" if isinstance(name, str) and name else str(r["road_id"])
-    kind = f" ({r['kind']})" if isinstance(r.get("kind"), str) else ""
-    hazard, detail = r.get("hidden_hazard"), r.get("hazard_detail")
-    if not isinstance(hazard, str) or hazard == "none":
-        hidden = "hides no junction or bend, only the road ahead"
-    else:
-        hidden = f"hides a {hazard}" + (f" ({detail})" if isinstance(detail, str) and detail else "")
-    need = r.get(f"ssd_required_{unit}")
-    short = f"sight distance {float(r[f'shortfall_{unit}']):.0f} {unit} short" \
-        + (f" of the {float(need):.0f} {unit} required" if pd.notna(need) else "")
-    hint = r.get("treatment_hint")
-    return f"{road}, curve {int(r['curve_no'])}{kind}: {hidden}; {short}" \
-        + (f"; {hint}" if isinstance(hint, str) and hint else "") + "."
 
 
 def write_xlsx(path: Path, sheets: dict[str, pd.DataFrame], method_lines: list[tuple[str, str]],
