@@ -101,7 +101,8 @@ def _flag_angle_points(curves: pd.DataFrame) -> pd.DataFrame:
     short = (curves["length_m"] < 2 * curves["length_sd_m"]) & ~curves["flags"].str.contains("angle point")
     for i in curves.index[short]:
         flag = (f"angle point or very short curve: L = {curves.at[i, 'length_m']:.0f} m is within two standard "
-                f"deviations ({2 * curves.at[i, 'length_sd_m']:.0f} m) of none at all")
+                f"deviations ({2 * curves.at[i, 'length_sd_m']:.0f} m) of zero, so the data cannot tell it from a "
+                f"sharp change of grade")
         curves.at[i, "flags"] = "; ".join(f for f in (curves.at[i, "flags"], flag) if f)
         if curves.at[i, "confidence"] == "high":
             curves.at[i, "confidence"] = "medium"
