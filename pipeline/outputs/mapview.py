@@ -248,13 +248,129 @@ def label_candidates(anchor, size, radius: float | None) -> np.ndarray:
     return np.column_stack([c[:, 0] - w / 2, c[:, 1] - h / 2, c[:, 0] + w / 2, c[:, 1] + h / 2])
 
 
-def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, bounds) -> tuple:
+class BoxGrid:
+    """Axis-aligned boxes (px) in a uniform grid hash, for overlap tests that stay local.
+
+    Each box is filed under every cell of ``cell`` px it meets (cells outside the grid's
+    ``bounds`` are clamped to its edge, which keeps the test exact, only less sharp there). A
+    query gathers the boxes filed under the cells a candidate meets and tests those alone, so
+    its cost does not grow with the number of boxes placed. Common practice in spatial
+    indexing, no single source.
+
+    Parameters
+    ----------
+    bounds : tuple of float
+        The area queried (x0, y0, x1, y1; px).
+    cell : float
+        The cell's side (px); about a rank label's size.
+    """
+
+    def __init__(self, bounds, cell: float = 32.0):
+        self.x0, self.y0 = float(bounds[0]), float(bounds[1])
+        self.cell = float(cell)
+        self.nx = max(int(math.ceil((bounds[2] - bounds[0]) / cell)), 1)
+        self.ny = max(int(math.ceil((bounds[3] - bounds[1]) / cell)), 1)
+        self.boxes = np.zeros((64, 4))
+        self.solid = np.zeros((64, 6))  # the same boxes as oriented rectangles (see as_oriented)
+        self.n = 0
+        self.slots = np.full((self.ny, self.nx, 4), -1, dtype=np.int64)
+        self.count = np.zeros((self.ny, self.nx), dtype=np.int64)
+
+    def _cells(self, boxes: np.ndarray, pad: float = 0.0) -> tuple:
+        """Each box's cell range (ix0, iy0, ix1, iy1; inclusive, clamped to the grid)."""
+        b = np.asarray(boxes, dtype=float).reshape(-1, 4)
+        ix = np.floor((b[:, [0, 2]] + [-pad, pad] - self.x0) / self.cell)
+        iy = np.floor((b[:, [1, 3]] + [-pad, pad] - self.y0) / self.cell)
+        ix = np.clip(ix, 0, self.nx - 1).astype(np.int64)
+        iy = np.clip(iy, 0, self.ny - 1).astype(np.int64)
+        return ix[:, 0], iy[:, 0], ix[:, 1], iy[:, 1]
+
+    def add(self, boxes: np.ndarray, solid: np.ndarray | None = None) -> None:
+        """File boxes (m, 4); ``solid`` their oriented rectangles (m, 6), by default the boxes."""
+        boxes = np.asarray(boxes, dtype=float).reshape(-1, 4)
+        solid = as_oriented(boxes) if solid is None else np.asarray(solid, dtype=float).reshape(-1, 6)
+        if self.n + len(boxes) > len(self.boxes):
+            grow = max(2 * len(self.boxes), self.n + len(boxes))
+            self.boxes = np.vstack([self.boxes, np.zeros((grow - len(self.boxes), 4))])
+            self.solid = np.vstack([self.solid, np.zeros((grow - len(self.solid), 6))])
+        ix0, iy0, ix1, iy1 = self._cells(boxes)
+        for k in range(len(boxes)):
+            i = self.n + k
+            self.boxes[i], self.solid[i] = boxes[k], solid[k]
+            rows, cols = slice(iy0[k], iy1[k] + 1), slice(ix0[k], ix1[k] + 1)
+            at = self.count[rows, cols]
+            if at.max() >= self.slots.shape[2]:
+                extra = np.full((self.ny, self.nx, self.slots.shape[2]), -1, dtype=np.int64)
+                self.slots = np.concatenate([self.slots, extra], axis=2)
+            r, c = np.mgrid[rows, cols]
+            self.slots[r, c, at] = i
+            self.count[rows, cols] = at + 1
+        self.n += len(boxes)
+
+    def near(self, cands: np.ndarray, pad: float = 1.0) -> np.ndarray:
+        """For each candidate box (k, 4), the boxes filed under the cells it meets grown by
+        ``pad``: an index array (k, j), -1 where there is none (a box may appear twice)."""
+        ix0, iy0, ix1, iy1 = self._cells(cands, pad)
+        sx, sy = int((ix1 - ix0).max()) + 1, int((iy1 - iy0).max()) + 1
+        ox, oy = np.meshgrid(np.arange(sx), np.arange(sy))
+        cx, cy = ix0[:, None] + ox.ravel(), iy0[:, None] + oy.ravel()
+        valid = (cx <= ix1[:, None]) & (cy <= iy1[:, None])
+        cy, cx = np.minimum(cy, self.ny - 1), np.minimum(cx, self.nx - 1)
+        depth = max(int(self.count[cy, cx].max()), 1)  # only as many slots as the fullest cell met
+        idx = self.slots[cy, cx, :depth]  # (k, cells, slots)
+        idx = np.where(valid[:, :, None], idx, -1)
+        return idx.reshape(len(ix0), -1)
+
+    def hits(self, cands: np.ndarray, pad: float = 1.0) -> np.ndarray:
+        """Whether each candidate box (k, 4), grown by ``pad`` px, overlaps a filed box;
+        touching is not overlapping (as :func:`overlaps`)."""
+        cands = np.asarray(cands, dtype=float).reshape(-1, 4)
+        if not self.n or not len(cands):
+            return np.zeros(len(cands), dtype=bool)
+        idx = self.near(cands, pad)
+        b = self.boxes[np.maximum(idx, 0)]
+        c = cands[:, None, :]
+        hit = ((c[..., 0] - pad < b[..., 2]) & (b[..., 0] < c[..., 2] + pad)
+               & (c[..., 1] - pad < b[..., 3]) & (b[..., 1] < c[..., 3] + pad) & (idx >= 0))
+        return hit.any(axis=1)
+
+    def taken(self) -> np.ndarray:
+        """The boxes filed, in order (m, 4)."""
+        return self.boxes[:self.n].copy()
+
+
+def _ring_table(reach: float) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """The rings out to ``reach`` (:func:`label_candidates`) as (radius, cos, sin) arrays, in
+    stages of growing size (the nearest four rings, then the rest), so that a label finds
+    its first free spot in one or two passes."""
+    rings = []
+    for r in _rings(reach):
+        n = int(np.clip(2 * math.pi * r / 16.0, 12, 96))
+        t = np.arange(n) * 2 * math.pi / n
+        rings.append((np.full(n, r), np.cos(t), np.sin(t)))
+    stages = [rings[:4], rings[4:]]
+    return [tuple(np.concatenate(part) for part in zip(*st)) for st in stages if st]
+
+
+def ring_candidates(anchor, size, stage) -> np.ndarray:
+    """The candidate boxes of one stage of rings (:func:`_ring_table`) around ``anchor``
+    (px), in the order :func:`label_candidates` gives them ring by ring."""
+    w, h = size
+    r, cos, sin = stage
+    cx = anchor[0] + r * cos + np.sign(cos) * w / 2
+    cy = anchor[1] - r * sin
+    return np.column_stack([cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2])
+
+
+def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles, bounds) -> tuple:
     """Greedy label placement with box overlap tests.
 
     Each label, in the order given, takes the first candidate position
     (:func:`label_candidates`: next to its anchor, then rings further out) whose box lies in
     ``bounds`` and overlaps neither an obstacle nor a label placed before. Common practice in
-    map labelling, no single source.
+    map labelling, no single source. The boxes are tested through a :class:`BoxGrid`, so each
+    label costs about the same however many were placed before; a label tries at most its
+    eight spots and the rings out to :data:`LEADER_MAX` (at most 96 spots a ring).
 
     Parameters
     ----------
@@ -262,8 +378,8 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, 
         The points labelled (px).
     sizes : ndarray, shape (n, 2)
         Each label's width and height (px).
-    obstacles : ndarray, shape (m, 4)
-        Boxes no label may cover (x0, y0, x1, y1; px).
+    obstacles : ndarray, shape (m, 4), or BoxGrid
+        Boxes no label may cover (x0, y0, x1, y1; px); a grid gets the placed labels added.
     bounds : tuple of float
         The box every label must lie in.
 
@@ -274,32 +390,27 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, 
     leader : ndarray of bool, shape (n,)
         Whether the label sits away from its anchor (draw a leader line).
     """
-    taken = np.asarray(obstacles, dtype=float).reshape(-1, 4)
+    if isinstance(obstacles, BoxGrid):
+        grid = obstacles
+    else:
+        grid = BoxGrid(bounds)
+        grid.add(np.asarray(obstacles, dtype=float).reshape(-1, 4))
     boxes = np.full((len(anchors), 4), np.nan)
     leader = np.zeros(len(anchors), dtype=bool)
-    reach = min(math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1]), LEADER_MAX)
+    stages = _ring_table(min(math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1]), LEADER_MAX))
     for i, (anchor, size) in enumerate(zip(anchors, sizes)):
-        for radius in [None, *_rings(reach)]:
-            cands = label_candidates(anchor, size, radius)
+        for k in range(len(stages) + 1):
+            far = k > 0
+            cands = ring_candidates(anchor, size, stages[k - 1]) if far else label_candidates(anchor, size, None)
             ok = inside(cands, bounds)
             if ok.any():
-                near = taken[_near(taken, anchor, (radius or 0.0) + size[0] + size[1] + 4.0)]
-                ok &= ~overlaps(cands, near)
+                ok[ok] = ~grid.hits(cands[ok])
             if ok.any():
                 boxes[i] = cands[np.argmax(ok)]
-                leader[i] = radius is not None
-                taken = np.vstack([taken, boxes[i]])
+                leader[i] = far
+                grid.add(boxes[i])
                 break
     return boxes, leader
-
-
-def _near(boxes: np.ndarray, point, reach: float) -> np.ndarray:
-    """Which boxes come within ``reach`` of a point (a cheap pre-filter)."""
-    if not len(boxes):
-        return np.zeros(0, dtype=bool)
-    x, y = point
-    return ((boxes[:, 0] - reach <= x) & (x <= boxes[:, 2] + reach)
-            & (boxes[:, 1] - reach <= y) & (y <= boxes[:, 3] + reach))
 
 
 # ------------------------------------------------------------------ grouping and panels
@@ -466,7 +577,7 @@ def _road_paths(roads: list[MapRoad], view: View) -> tuple[list[str], dict]:
         line = shapely.LineString(r.xy) if len(r.xy) > 1 else None
         if line is None or not line.intersects(seen):
             continue
-        xy = view.px(shapely.get_coordinates(shapely.simplify(line, 0.5 / view.s)))
+        xy = view.px(shapely.get_coordinates(shapely.simplify(line, 0.5 / view.s, preserve_topology=False)))
         style = (f"stroke='{SKIPPED_GREY}' stroke-width='1.4' stroke-dasharray='2 3'" if r.skipped
                  else f"stroke='{ROAD_GREY}' stroke-width='1.8'")
         out.append(f"<polyline class='road' points='{_pts(xy)}' fill='none' {style} stroke-linejoin='round'>"
@@ -539,43 +650,49 @@ def _marker_boxes(points: np.ndarray) -> np.ndarray:
 FRACTIONS = tuple(sorted(np.round(np.arange(0.04, 0.97, 0.04), 2), key=lambda f: (abs(f - 0.5), f)))
 
 
-def road_label_candidates(xy: np.ndarray, text: str) -> list[tuple[float, float, float, np.ndarray, np.ndarray]]:
-    """Spots along a pixel line for a name: (x, y, angle in degrees, box, oriented box), best first.
+def road_label_candidates(xy: np.ndarray, text: str) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Spots along a pixel line for a name, best first: centres (k, 2), angles in degrees (k,),
+    boxes (k, 4) and oriented boxes (k, 6).
 
     The name runs along the chord of the line under it, upright, beside the line (just
-    above, just below, then a little further off either side); a
-    spot is kept only where the line under the name is nearly straight (chord at least 85 %
-    of the name's length). ``box`` is the rotated name's axis-aligned bounding box,
-    ``oriented box`` the name's own rectangle (:func:`oriented_overlaps`).
+    above, just below, then a little further off either side), at :data:`FRACTIONS` of the
+    line's length; a spot is kept only where the line under the name is nearly straight
+    (chord at least 85 % of the name's length). ``box`` is the rotated name's axis-aligned
+    bounding box, ``oriented box`` the name's own rectangle (:func:`oriented_overlaps`). All
+    spots are computed at once (numpy).
     """
+    none = (np.zeros((0, 2)), np.zeros(0), np.zeros((0, 4)), np.zeros((0, 6)))
     tw, half_h = text_width(text, ROAD_FONT), ROAD_FONT * 0.65
     seg = np.hypot(*np.diff(xy, axis=0).T)
     cum = np.concatenate([[0.0], np.cumsum(seg)])
     if cum[-1] < tw * 1.1:
-        return []
+        return none
 
     def at(s):
-        return np.array([np.interp(s, cum, xy[:, 0]), np.interp(s, cum, xy[:, 1])])
+        return np.column_stack([np.interp(s, cum, xy[:, 0]), np.interp(s, cum, xy[:, 1])])
 
-    out = []
-    for f in FRACTIONS:
-        c = f * cum[-1]
-        if c - tw / 2 < 0 or c + tw / 2 > cum[-1]:
-            continue
-        chord = at(c + tw / 2) - at(c - tw / 2)
-        if np.hypot(*chord) < 0.85 * tw:
-            continue
-        ang = math.degrees(math.atan2(chord[1], chord[0]))
-        ang = ang - 180 if ang > 90 else ang + 180 if ang < -90 else ang
-        t = math.radians(ang)
-        normal = np.array([math.sin(t), -math.cos(t)])  # screen "up" for upright text
-        hx = abs(math.cos(t)) * tw / 2 + abs(math.sin(t)) * half_h
-        hy = abs(math.sin(t)) * tw / 2 + abs(math.cos(t)) * half_h
-        for side in (1.0, -1.0, 2.6, -2.6):
-            x, y = at(c) + side * normal * (half_h + 3.5)
-            out.append((float(x), float(y), ang, np.array([x - hx, y - hy, x + hx, y + hy]),
-                        np.array([x, y, tw / 2, half_h, math.cos(t), math.sin(t)])))
-    return out
+    c = np.asarray(FRACTIONS) * cum[-1]
+    c = c[(c - tw / 2 >= 0) & (c + tw / 2 <= cum[-1])]
+    chord = at(c + tw / 2) - at(c - tw / 2)
+    keep = np.hypot(chord[:, 0], chord[:, 1]) >= 0.85 * tw
+    c, chord = c[keep], chord[keep]
+    if not len(c):
+        return none
+    ang = np.degrees(np.arctan2(chord[:, 1], chord[:, 0]))
+    ang = np.where(ang > 90, ang - 180, np.where(ang < -90, ang + 180, ang))
+    t = np.radians(ang)
+    cos, sin = np.cos(t), np.sin(t)
+    normal = np.column_stack([sin, -cos])  # screen "up" for upright text
+    hx = np.abs(cos) * tw / 2 + np.abs(sin) * half_h
+    hy = np.abs(sin) * tw / 2 + np.abs(cos) * half_h
+    side = np.array([1.0, -1.0, 2.6, -2.6])
+    centre = (at(c)[:, None, :] + side[None, :, None] * normal[:, None, :] * (half_h + 3.5)).reshape(-1, 2)
+    rep = np.repeat  # four sides per fraction, in fraction order
+    hx, hy, cos, sin, ang = rep(hx, 4), rep(hy, 4), rep(cos, 4), rep(sin, 4), rep(ang, 4)
+    x, y = centre[:, 0], centre[:, 1]
+    box = np.column_stack([x - hx, y - hy, x + hx, y + hy])
+    obb = np.column_stack([x, y, np.full(len(x), tw / 2), np.full(len(x), half_h), cos, sin])
+    return centre, ang, box, obb
 
 
 def as_oriented(boxes: np.ndarray) -> np.ndarray:
@@ -595,56 +712,63 @@ def oriented_overlaps(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> 
     """
     if not len(others):
         return False
-    hwa, hha, ux, uy = box[2] + pad, box[3] + pad, box[4], box[5]
-    dx, dy = others[:, 0] - box[0], others[:, 1] - box[1]
-    hwb, hhb, ox, oy = others[:, 2], others[:, 3], others[:, 4], others[:, 5]
+    return bool(_oriented_hits(np.asarray(box, dtype=float)[None, None, :],
+                               np.asarray(others, dtype=float)[None], pad).any())
+
+
+def _oriented_hits(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> np.ndarray:
+    """Element-wise separating axis test (:func:`oriented_overlaps`) of oriented boxes
+    (..., 6), the first grown by ``pad``; broadcasts."""
+    hwa, hha, ux, uy = box[..., 2] + pad, box[..., 3] + pad, box[..., 4], box[..., 5]
+    dx, dy = others[..., 0] - box[..., 0], others[..., 1] - box[..., 1]
+    hwb, hhb, ox, oy = others[..., 2], others[..., 3], others[..., 4], others[..., 5]
     c, sn = np.abs(ux * ox + uy * oy), np.abs(uy * ox - ux * oy)  # |cos|, |sin| of the angle between them
     apart = ((np.abs(dx * ux + dy * uy) >= hwa + hwb * c + hhb * sn)
              | (np.abs(dy * ux - dx * uy) >= hha + hwb * sn + hhb * c)
              | (np.abs(dx * ox + dy * oy) >= hwb + hwa * c + hha * sn)
              | (np.abs(dy * ox - dx * oy) >= hhb + hwa * sn + hha * c))
-    return bool((~apart).any())
+    return ~apart
 
 
-def place_road_names(lines: dict, taken: np.ndarray, bounds) -> tuple[list[str], np.ndarray, list[str]]:
+def place_road_names(lines: dict, grid: "BoxGrid", bounds) -> tuple[list[str], list[str]]:
     """Each road's name at its first free spot along its longest visible piece (its id where
-    the name fits nowhere); returns the SVG, the boxes now taken (a name by its axis-aligned
-    bounding box) and the roads left unnamed. Names are tested as the rotated rectangles
-    they are against what is taken."""
+    the name fits nowhere); returns the SVG and the roads left unnamed, and files each name in
+    ``grid`` (by its axis-aligned bounding box, and its rectangle for later names). Names are
+    tested as the rotated rectangles they are against what is taken, among the boxes their
+    bounding box meets (all spots of a road at once)."""
     out, missed = [], []
-    solid, hull = as_oriented(taken), np.asarray(taken, dtype=float).reshape(-1, 4)
     for rid in sorted(lines, key=lambda r: -max(_length(p) for p in lines[r][1])):
         name, parts = lines[rid]
         xy = max(parts, key=_length)
         spot = None
         for text in dict.fromkeys([name, rid]):
-            for x, y, ang, box, obb in road_label_candidates(xy, text):
-                if not inside(box[None], bounds)[0]:
-                    continue
-                near = _hits(box, hull)  # only what the name's bounding box meets can overlap it
-                if not near.any() or not oriented_overlaps(obb, solid[near]):
-                    spot = (text, x, y, ang, box, obb)
-                    break
-            if spot:
+            centre, ang, box, obb = road_label_candidates(xy, text)
+            ok = np.flatnonzero(inside(box, bounds))
+            if not len(ok):
+                continue
+            if grid.n:
+                idx = grid.near(box[ok])
+                hull, solid = grid.boxes[np.maximum(idx, 0)], grid.solid[np.maximum(idx, 0)]
+                b = box[ok][:, None, :]
+                meet = ((b[..., 0] - 1.0 < hull[..., 2]) & (hull[..., 0] < b[..., 2] + 1.0)
+                        & (b[..., 1] - 1.0 < hull[..., 3]) & (hull[..., 1] < b[..., 3] + 1.0) & (idx >= 0))
+                hit = (meet & _oriented_hits(obb[ok][:, None, :], solid)).any(axis=1)
+                ok = ok[~hit]
+            if len(ok):
+                k = ok[0]
+                spot = (text, float(centre[k, 0]), float(centre[k, 1]), float(ang[k]), box[k], obb[k])
                 break
         if spot is None:
             missed.append(rid)
             continue
         text, x, y, ang, box, obb = spot
-        taken = np.vstack([taken, box])
-        solid, hull = np.vstack([solid, obb]), np.vstack([hull, box])
+        grid.add(box, obb)
         out.append(f"<text class='road-label' data-road='{_a(rid)}' data-box='{' '.join(f'{v:.3f}' for v in obb)}' "
                    f"x='{x:.1f}' y='{y:.1f}' transform='rotate({ang:.1f} {x:.1f} {y:.1f})' text-anchor='middle' "
                    f"dominant-baseline='central' font-size='{ROAD_FONT}' fill='#333333' stroke='white' "
                    f"stroke-width='3' paint-order='stroke' textLength='{text_width(text, ROAD_FONT):.1f}' "
                    f"lengthAdjust='spacingAndGlyphs'>{_a(text)}<title>{_a(name)} ({_a(rid)})</title></text>")
-    return out, taken, missed
-
-
-def _hits(box: np.ndarray, boxes: np.ndarray, pad: float = 1.0) -> np.ndarray:
-    """Which of ``boxes`` (m, 4) meet ``box`` (4,) grown by ``pad``."""
-    return ((box[0] - pad < boxes[:, 2]) & (boxes[:, 0] < box[2] + pad)
-            & (box[1] - pad < boxes[:, 3]) & (boxes[:, 1] < box[3] + pad))
+    return out, missed
 
 
 def _length(xy: np.ndarray) -> float:
@@ -735,16 +859,17 @@ def render_panel(panel: Panel, roads: list[MapRoad], stretches: list[MapStretch]
     seen = v.seen()
     extra = [s for s in others if seen[0] <= s.anchor[0] <= seen[2] and seen[1] <= s.anchor[1] <= seen[3]]
     extra_pts = v.px(np.array([s.anchor for s in extra])) if extra else np.zeros((0, 2))
-    taken = _marker_boxes(np.vstack([pts, extra_pts]))
+    taken = BoxGrid(frame)
+    taken.add(_marker_boxes(np.vstack([pts, extra_pts])))
     body = road_svg + _stretch_paths(list(stretches) + extra, v)
     over, labels = [], []
     if panel.kind == "overview":
-        outlines, labels, taken = _inset_outlines(insets, v, taken)
+        outlines, labels = _inset_outlines(insets, v, taken)
         body += outlines + [_marker(s, p) for s, p in zip(stretches, pts)]
     else:
-        leaders, marks, labels, taken, over = _rank_labels(stretches, pts, taken, frame)
+        leaders, marks, labels, over = _rank_labels(stretches, pts, taken, frame)
         body += leaders + [_marker(s, p) for s, p in zip(extra, extra_pts)] + marks
-        names, taken, _ = place_road_names(lines, taken, frame)
+        names, _ = place_road_names(lines, taken, frame)
         labels = names + labels
     clip = f"map-clip-{panel.key}"
     parts = [f"<g class='panel' data-kind='{panel.kind}' data-letter='{_a(panel.letter)}' "
@@ -765,8 +890,8 @@ def render_panel(panel: Panel, roads: list[MapRoad], stretches: list[MapStretch]
 
 
 def _rank_labels(stretches, pts, taken, frame):
-    """Rank labels placed in rank order; returns leaders, markers, labels, boxes taken and the
-    stretches left for the row under the frame."""
+    """Rank labels placed in rank order (each filed in the grid ``taken``); returns leaders,
+    markers, labels and the stretches left for the row under the frame."""
     order = np.argsort([s.rank for s in stretches], kind="stable")
     sizes = np.array([rank_label_size(stretches[i].rank) for i in order]).reshape(-1, 2)
     boxes, leader = place_labels(pts[order], sizes, taken, frame)
@@ -777,9 +902,8 @@ def _rank_labels(stretches, pts, taken, frame):
             continue
         leaders.append(_leader(pts[i], boxes[k]))  # a tick even for a label next to its marker, so pairs read right
         labels.append(_rank_label(stretches[i], boxes[k]))
-    placed = boxes[~np.isnan(boxes[:, 0])]
     marks = [_marker(s, p) for s, p in zip(stretches, pts)]
-    return leaders, marks, labels, np.vstack([taken, placed]), over
+    return leaders, marks, labels, over
 
 
 OVERFLOW_LEADERS = 12  # up to this many labels without room get boxes and leader lines; more are listed
@@ -819,9 +943,9 @@ def _overflow_row(over: list, width: float, y: float) -> tuple[str, float]:
     return "".join(parts), y + 8.0
 
 
-def _inset_outlines(insets: list[Panel], view: View, taken: np.ndarray) -> tuple[list[str], list[str], np.ndarray]:
+def _inset_outlines(insets: list[Panel], view: View, taken: BoxGrid) -> tuple[list[str], list[str]]:
     """Each inset's window outlined on the overview and lettered at a free spot by its upper
-    left corner; returns the outlines, the letters and the boxes now taken."""
+    left corner (filed in the grid ``taken``); returns the outlines and the letters."""
     outlines, letters = [], []
     for p in insets:
         a, b = view.px(p.view.window[[0, 3]])[0], view.px(p.view.window[[2, 1]])[0]
@@ -834,12 +958,11 @@ def _inset_outlines(insets: list[Panel], view: View, taken: np.ndarray) -> tuple
         if np.isnan(boxes[0, 0]):
             continue
         x0, y0, x1, y1 = boxes[0]
-        taken = np.vstack([taken, boxes[0]])
         letters.append(f"<g class='inset-letter'><rect x='{x0:.1f}' y='{y0:.1f}' width='{x1 - x0:.1f}' "
                        f"height='{y1 - y0:.1f}' fill='{INSET_INK}'/><text x='{(x0 + x1) / 2:.1f}' "
                        f"y='{(y0 + y1) / 2:.1f}' text-anchor='middle' dominant-baseline='central' font-size='12' "
                        f"font-weight='bold' fill='white'>{_a(p.letter)}</text></g>")
-    return outlines, letters, taken
+    return outlines, letters
 
 
 # ------------------------------------------------------------------ the whole map
