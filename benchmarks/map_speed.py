@@ -5,7 +5,7 @@ smooth random walk (heading changing by a few degrees per vertex) started at a r
 of a square sized for about 1 km of road per km2, a county's density; ``stretches`` deficient
 stretches of 60-200 m spread over the roads (severities and verdicts cycled, every fifth
 stretch with a curve page). For each size the map is built as the report builds it
-(:func:`map_inputs` then :func:`map_svg`) and the wall time (median of ``--repeats``), the
+(:func:`map_inputs` then :func:`map_svg`) and the wall and CPU time (medians of ``--repeats``; CPU time is the steadier on a busy machine), the
 SVG's size and how many stretches went to the list under the drawing are printed.
 ``--profile`` prints the top functions of a cProfile run of the largest size.
 
@@ -81,17 +81,18 @@ def main(argv=None) -> None:
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--profile", action="store_true", help="cProfile the largest size")
     args = ap.parse_args(argv)
-    print(f"{'roads':>6} {'stretches':>9} {'wall s':>8} {'SVG kB':>8} {'listed':>7}")
+    print(f"{'roads':>6} {'stretches':>9} {'wall s':>8} {'CPU s':>7} {'SVG kB':>8} {'listed':>7}")
     for size in args.sizes:
         nr, ns = (int(v) for v in size.split(":"))
         table, inv, paged = network(nr, ns)
-        times = []
+        times, cpu = [], []
         for _ in range(args.repeats):
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.process_time()
             svg = build(table, inv, paged)
             times.append(time.perf_counter() - t0)
+            cpu.append(time.process_time() - c0)
         listed = svg.count("class='rank-entry'")
-        print(f"{nr:>6} {ns:>9} {np.median(times):>8.2f} {len(svg) / 1000:>8.0f} {listed:>7}", flush=True)
+        print(f"{nr:>6} {ns:>9} {np.median(times):>8.2f} {np.median(cpu):>7.2f} {len(svg) / 1000:>8.0f} {listed:>7}", flush=True)
     if args.profile:
         prof = cProfile.Profile()
         prof.enable()

@@ -25,6 +25,7 @@ Hover shows a stretch's rank, road, chainage range, kind, shortfall and verdict 
 
 from __future__ import annotations
 
+import functools
 import html
 import math
 from dataclasses import dataclass, field
@@ -180,6 +181,7 @@ def hover_text(d, name: str, units, linked: bool) -> str:
 
 
 # ------------------------------------------------------------------ text and boxes
+@functools.lru_cache(maxsize=4096)
 def text_width(text: str, size: float, bold: bool = False) -> float:
     """Width of a line of text (px), from DejaVu Sans advance widths rounded up."""
     adv = _ADVANCE[bold]
@@ -248,14 +250,18 @@ def label_candidates(anchor, size, radius: float | None) -> np.ndarray:
     return np.column_stack([c[:, 0] - w / 2, c[:, 1] - h / 2, c[:, 0] + w / 2, c[:, 1] + h / 2])
 
 
+_FAR = 1e9  # px; an empty slot of the grid holds a box this far off, which meets nothing
+
+
 class BoxGrid:
     """Axis-aligned boxes (px) in a uniform grid hash, for overlap tests that stay local.
 
     Each box is filed under every cell of ``cell`` px it meets (cells outside the grid's
-    ``bounds`` are clamped to its edge, which keeps the test exact, only less sharp there). A
-    query gathers the boxes filed under the cells a candidate meets and tests those alone, so
-    its cost does not grow with the number of boxes placed. Common practice in spatial
-    indexing, no single source.
+    ``bounds`` are clamped to its edge, which keeps the test exact, only less sharp there),
+    together with its oriented rectangle (:func:`as_oriented`; a road name's own). A query
+    gathers the boxes filed under the cells a candidate meets and tests those alone, so its
+    cost does not grow with the number of boxes placed. Common practice in spatial indexing,
+    no single source.
 
     Parameters
     ----------
@@ -270,11 +276,17 @@ class BoxGrid:
         self.cell = float(cell)
         self.nx = max(int(math.ceil((bounds[2] - bounds[0]) / cell)), 1)
         self.ny = max(int(math.ceil((bounds[3] - bounds[1]) / cell)), 1)
-        self.boxes = np.zeros((64, 4))
-        self.solid = np.zeros((64, 6))  # the same boxes as oriented rectangles (see as_oriented)
         self.n = 0
-        self.slots = np.full((self.ny, self.nx, 4), -1, dtype=np.int64)
-        self.count = np.zeros((self.ny, self.nx), dtype=np.int64)
+        # per cell (the last one always empty), slots of box (4) and oriented rectangle (6)
+        self.slots = self._empty(self.nx * self.ny + 1, 4)
+        self.count = np.zeros(self.nx * self.ny + 1, dtype=np.int64)
+
+    @staticmethod
+    def _empty(cells: int, depth: int) -> np.ndarray:
+        out = np.zeros((cells, depth, 10))
+        out[..., :2] = out[..., 6:8] = _FAR  # a point box far off
+        out[..., 8] = 1.0
+        return out
 
     def _cells(self, boxes: np.ndarray, pad: float = 0.0) -> tuple:
         """Each box's cell range (ix0, iy0, ix1, iy1; inclusive, clamped to the grid)."""
@@ -289,37 +301,33 @@ class BoxGrid:
         """File boxes (m, 4); ``solid`` their oriented rectangles (m, 6), by default the boxes."""
         boxes = np.asarray(boxes, dtype=float).reshape(-1, 4)
         solid = as_oriented(boxes) if solid is None else np.asarray(solid, dtype=float).reshape(-1, 6)
-        if self.n + len(boxes) > len(self.boxes):
-            grow = max(2 * len(self.boxes), self.n + len(boxes))
-            self.boxes = np.vstack([self.boxes, np.zeros((grow - len(self.boxes), 4))])
-            self.solid = np.vstack([self.solid, np.zeros((grow - len(self.solid), 6))])
         ix0, iy0, ix1, iy1 = self._cells(boxes)
         for k in range(len(boxes)):
-            i = self.n + k
-            self.boxes[i], self.solid[i] = boxes[k], solid[k]
-            rows, cols = slice(iy0[k], iy1[k] + 1), slice(ix0[k], ix1[k] + 1)
-            at = self.count[rows, cols]
-            if at.max() >= self.slots.shape[2]:
-                extra = np.full((self.ny, self.nx, self.slots.shape[2]), -1, dtype=np.int64)
-                self.slots = np.concatenate([self.slots, extra], axis=2)
-            r, c = np.mgrid[rows, cols]
-            self.slots[r, c, at] = i
-            self.count[rows, cols] = at + 1
+            r, c = np.mgrid[iy0[k]:iy1[k] + 1, ix0[k]:ix1[k] + 1]
+            cells = (r * self.nx + c).ravel()
+            at = self.count[cells]
+            if at.max() >= self.slots.shape[1]:
+                self.slots = np.concatenate([self.slots, self._empty(len(self.slots), self.slots.shape[1])], axis=1)
+            self.slots[cells, at, :4] = boxes[k]
+            self.slots[cells, at, 4:] = solid[k]
+            self.count[cells] = at + 1
         self.n += len(boxes)
 
-    def near(self, cands: np.ndarray, pad: float = 1.0) -> np.ndarray:
-        """For each candidate box (k, 4), the boxes filed under the cells it meets grown by
-        ``pad``: an index array (k, j), -1 where there is none (a box may appear twice)."""
+    def near(self, cands: np.ndarray, pad: float = 1.0, cols=slice(0, 4)) -> tuple[np.ndarray, np.ndarray]:
+        """The boxes filed under the cells each candidate box (k, 4) meets, grown by ``pad``:
+        (t, 4) boxes (``cols`` slice(0, 10) adds their oriented rectangles) and, for each, the
+        candidate it is near (t,); a box may appear twice."""
         ix0, iy0, ix1, iy1 = self._cells(cands, pad)
         sx, sy = int((ix1 - ix0).max()) + 1, int((iy1 - iy0).max()) + 1
-        ox, oy = np.meshgrid(np.arange(sx), np.arange(sy))
-        cx, cy = ix0[:, None] + ox.ravel(), iy0[:, None] + oy.ravel()
-        valid = (cx <= ix1[:, None]) & (cy <= iy1[:, None])
-        cy, cx = np.minimum(cy, self.ny - 1), np.minimum(cx, self.nx - 1)
-        depth = max(int(self.count[cy, cx].max()), 1)  # only as many slots as the fullest cell met
-        idx = self.slots[cy, cx, :depth]  # (k, cells, slots)
-        idx = np.where(valid[:, :, None], idx, -1)
-        return idx.reshape(len(ix0), -1)
+        cx = ix0[:, None, None] + np.arange(sx)[None, None, :]
+        cy = iy0[:, None, None] + np.arange(sy)[None, :, None]
+        cells = np.where((cx <= ix1[:, None, None]) & (cy <= iy1[:, None, None]), cy * self.nx + cx,
+                         len(self.count) - 1).ravel()
+        cnt = self.count[cells]
+        total = int(cnt.sum())
+        pair = np.repeat(np.arange(len(cells)), cnt)  # each (candidate, cell) once per box filed there
+        slot = np.arange(total) - np.repeat(np.cumsum(cnt) - cnt, cnt)
+        return self.slots[cells[pair], slot, cols], pair // (sx * sy)
 
     def hits(self, cands: np.ndarray, pad: float = 1.0) -> np.ndarray:
         """Whether each candidate box (k, 4), grown by ``pad`` px, overlaps a filed box;
@@ -327,16 +335,11 @@ class BoxGrid:
         cands = np.asarray(cands, dtype=float).reshape(-1, 4)
         if not self.n or not len(cands):
             return np.zeros(len(cands), dtype=bool)
-        idx = self.near(cands, pad)
-        b = self.boxes[np.maximum(idx, 0)]
-        c = cands[:, None, :]
-        hit = ((c[..., 0] - pad < b[..., 2]) & (b[..., 0] < c[..., 2] + pad)
-               & (c[..., 1] - pad < b[..., 3]) & (b[..., 1] < c[..., 3] + pad) & (idx >= 0))
-        return hit.any(axis=1)
-
-    def taken(self) -> np.ndarray:
-        """The boxes filed, in order (m, 4)."""
-        return self.boxes[:self.n].copy()
+        b, owner = self.near(cands, pad)
+        c = cands[owner]
+        hit = ((c[:, 0] - pad < b[:, 2]) & (b[:, 0] < c[:, 2] + pad)
+               & (c[:, 1] - pad < b[:, 3]) & (b[:, 1] < c[:, 3] + pad))
+        return np.bincount(owner[hit], minlength=len(cands)) > 0
 
 
 def _ring_table(reach: float) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
@@ -370,7 +373,10 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles, bounds) -> t
     ``bounds`` and overlaps neither an obstacle nor a label placed before. Common practice in
     map labelling, no single source. The boxes are tested through a :class:`BoxGrid`, so each
     label costs about the same however many were placed before; a label tries at most its
-    eight spots and the rings out to :data:`LEADER_MAX` (at most 96 spots a ring).
+    eight spots and the rings out to :data:`LEADER_MAX` (at most 96 spots a ring). Where a
+    label found no spot at all, the space around its grid cell is taken as full: a later
+    label (as wide or wider, in rank order) anchored in the same cell tries only its eight
+    spots, which keeps a crowded map's cost linear in its labels.
 
     Parameters
     ----------
@@ -398,8 +404,10 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles, bounds) -> t
     boxes = np.full((len(anchors), 4), np.nan)
     leader = np.zeros(len(anchors), dtype=bool)
     stages = _ring_table(min(math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1]), LEADER_MAX))
+    full = set()  # grid cells where an anchor found no spot at all
     for i, (anchor, size) in enumerate(zip(anchors, sizes)):
-        for k in range(len(stages) + 1):
+        cell = (int(anchor[0] // grid.cell), int(anchor[1] // grid.cell))
+        for k in range(1 if cell in full else len(stages) + 1):
             far = k > 0
             cands = ring_candidates(anchor, size, stages[k - 1]) if far else label_candidates(anchor, size, None)
             ok = inside(cands, bounds)
@@ -410,6 +418,8 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles, bounds) -> t
                 leader[i] = far
                 grid.add(boxes[i])
                 break
+        else:
+            full.add(cell)
     return boxes, leader
 
 
@@ -730,6 +740,9 @@ def _oriented_hits(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> np.
     return ~apart
 
 
+NAME_STAGE = 32  # a name's spots are tested in two passes: this many first (the middle of the line), then the rest
+
+
 def place_road_names(lines: dict, grid: "BoxGrid", bounds) -> tuple[list[str], list[str]]:
     """Each road's name at its first free spot along its longest visible piece (its id where
     the name fits nowhere); returns the SVG and the roads left unnamed, and files each name in
@@ -743,20 +756,20 @@ def place_road_names(lines: dict, grid: "BoxGrid", bounds) -> tuple[list[str], l
         spot = None
         for text in dict.fromkeys([name, rid]):
             centre, ang, box, obb = road_label_candidates(xy, text)
-            ok = np.flatnonzero(inside(box, bounds))
-            if not len(ok):
-                continue
-            if grid.n:
-                idx = grid.near(box[ok])
-                hull, solid = grid.boxes[np.maximum(idx, 0)], grid.solid[np.maximum(idx, 0)]
-                b = box[ok][:, None, :]
-                meet = ((b[..., 0] - 1.0 < hull[..., 2]) & (hull[..., 0] < b[..., 2] + 1.0)
-                        & (b[..., 1] - 1.0 < hull[..., 3]) & (hull[..., 1] < b[..., 3] + 1.0) & (idx >= 0))
-                hit = (meet & _oriented_hits(obb[ok][:, None, :], solid)).any(axis=1)
-                ok = ok[~hit]
-            if len(ok):
-                k = ok[0]
-                spot = (text, float(centre[k, 0]), float(centre[k, 1]), float(ang[k]), box[k], obb[k])
+            inner = np.flatnonzero(inside(box, bounds))
+            for ok in (inner[:NAME_STAGE], inner[NAME_STAGE:]):  # the best spots first, then the rest
+                if len(ok) and grid.n:
+                    near, owner = grid.near(box[ok], cols=slice(0, 10))
+                    b, o = box[ok][owner], obb[ok][owner]
+                    meet = ((b[:, 0] - 1.0 < near[:, 2]) & (near[:, 0] < b[:, 2] + 1.0)
+                            & (b[:, 1] - 1.0 < near[:, 3]) & (near[:, 1] < b[:, 3] + 1.0))
+                    meet[meet] = _oriented_hits(o[meet], near[meet, 4:])
+                    ok = ok[np.bincount(owner[meet], minlength=len(ok)) == 0]
+                if len(ok):
+                    k = ok[0]
+                    spot = (text, float(centre[k, 0]), float(centre[k, 1]), float(ang[k]), box[k], obb[k])
+                    break
+            if spot:
                 break
         if spot is None:
             missed.append(rid)
