@@ -291,11 +291,10 @@ class BoxGrid:
     def _cells(self, boxes: np.ndarray, pad: float = 0.0) -> tuple:
         """Each box's cell range (ix0, iy0, ix1, iy1; inclusive, clamped to the grid)."""
         b = np.asarray(boxes, dtype=float).reshape(-1, 4)
-        ix = np.floor((b[:, [0, 2]] + [-pad, pad] - self.x0) / self.cell)
-        iy = np.floor((b[:, [1, 3]] + [-pad, pad] - self.y0) / self.cell)
-        ix = np.clip(ix, 0, self.nx - 1).astype(np.int64)
-        iy = np.clip(iy, 0, self.ny - 1).astype(np.int64)
-        return ix[:, 0], iy[:, 0], ix[:, 1], iy[:, 1]
+        # truncation is the floor here: what lies left of or above the grid is clamped to 0
+        i = ((b + [-pad, -pad, pad, pad] - [self.x0, self.y0, self.x0, self.y0]) / self.cell).astype(np.int64)
+        i = np.minimum(np.maximum(i, 0), [self.nx - 1, self.ny - 1, self.nx - 1, self.ny - 1])
+        return i[:, 0], i[:, 1], i[:, 2], i[:, 3]
 
     def add(self, boxes: np.ndarray, solid: np.ndarray | None = None) -> None:
         """File boxes (m, 4); ``solid`` their oriented rectangles (m, 6), by default the boxes."""
@@ -740,37 +739,32 @@ def _oriented_hits(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> np.
     return ~apart
 
 
-NAME_STAGE = 32  # a name's spots are tested in two passes: this many first (the middle of the line), then the rest
-
-
 def place_road_names(lines: dict, grid: "BoxGrid", bounds) -> tuple[list[str], list[str]]:
     """Each road's name at its first free spot along its longest visible piece (its id where
     the name fits nowhere); returns the SVG and the roads left unnamed, and files each name in
     ``grid`` (by its axis-aligned bounding box, and its rectangle for later names). Names are
     tested as the rotated rectangles they are against what is taken, among the boxes their
-    bounding box meets (all spots of a road at once)."""
+    bounding box meets (all spots of a road, for its name and its id, in one pass)."""
     out, missed = [], []
     for rid in sorted(lines, key=lambda r: -max(_length(p) for p in lines[r][1])):
         name, parts = lines[rid]
         xy = max(parts, key=_length)
+        texts = list(dict.fromkeys([name, rid]))
+        spots = [road_label_candidates(xy, t) for t in texts]  # the name's spots, then the id's
+        which = np.concatenate([np.full(len(sp[1]), k) for k, sp in enumerate(spots)])
+        centre, ang, box, obb = (np.concatenate(parts) for parts in zip(*spots))
+        ok = np.flatnonzero(inside(box, bounds))
+        if len(ok) and grid.n:
+            near, owner = grid.near(box[ok], cols=slice(0, 10))
+            b, o = box[ok][owner], obb[ok][owner]
+            meet = ((b[:, 0] - 1.0 < near[:, 2]) & (near[:, 0] < b[:, 2] + 1.0)
+                    & (b[:, 1] - 1.0 < near[:, 3]) & (near[:, 1] < b[:, 3] + 1.0))
+            meet[meet] = _oriented_hits(o[meet], near[meet, 4:])
+            ok = ok[np.bincount(owner[meet], minlength=len(ok)) == 0]
         spot = None
-        for text in dict.fromkeys([name, rid]):
-            centre, ang, box, obb = road_label_candidates(xy, text)
-            inner = np.flatnonzero(inside(box, bounds))
-            for ok in (inner[:NAME_STAGE], inner[NAME_STAGE:]):  # the best spots first, then the rest
-                if len(ok) and grid.n:
-                    near, owner = grid.near(box[ok], cols=slice(0, 10))
-                    b, o = box[ok][owner], obb[ok][owner]
-                    meet = ((b[:, 0] - 1.0 < near[:, 2]) & (near[:, 0] < b[:, 2] + 1.0)
-                            & (b[:, 1] - 1.0 < near[:, 3]) & (near[:, 1] < b[:, 3] + 1.0))
-                    meet[meet] = _oriented_hits(o[meet], near[meet, 4:])
-                    ok = ok[np.bincount(owner[meet], minlength=len(ok)) == 0]
-                if len(ok):
-                    k = ok[0]
-                    spot = (text, float(centre[k, 0]), float(centre[k, 1]), float(ang[k]), box[k], obb[k])
-                    break
-            if spot:
-                break
+        if len(ok):
+            k = ok[0]
+            spot = (texts[which[k]], float(centre[k, 0]), float(centre[k, 1]), float(ang[k]), box[k], obb[k])
         if spot is None:
             missed.append(rid)
             continue
