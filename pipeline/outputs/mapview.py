@@ -14,6 +14,11 @@ that finds no spot goes to a row under the drawing, joined to its marker by a le
 no two labels ever print over each other. Roads are named along their line where the name
 fits straight and free.
 
+The boxes placed are kept in a uniform grid (:class:`BoxGrid`), so each test looks only at the
+boxes near a spot, and all spots of a label or a road name are tested in one numpy pass: the
+cost grows with the number of stretches and roads, not its square. Road lines are simplified
+to half a pixel before they are drawn and named.
+
 A network whose roads lie in groups far apart (its bounding box mostly empty, or very long and
 thin) gets an overview and one inset per group, a group too long for its panel being cut into
 pieces; the groups are the connected sets of road bounding boxes closer than a gap. Each inset
@@ -326,7 +331,8 @@ class BoxGrid:
         total = int(cnt.sum())
         pair = np.repeat(np.arange(len(cells)), cnt)  # each (candidate, cell) once per box filed there
         slot = np.arange(total) - np.repeat(np.cumsum(cnt) - cnt, cnt)
-        return self.slots[cells[pair], slot, cols], pair // (sx * sy)
+        rows = cells[pair] * self.slots.shape[1] + slot
+        return np.take(self.slots.reshape(-1, 10), rows, axis=0)[:, cols], pair // (sx * sy)
 
     def hits(self, cands: np.ndarray, pad: float = 1.0) -> np.ndarray:
         """Whether each candidate box (k, 4), grown by ``pad`` px, overlaps a filed box;
@@ -406,15 +412,20 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles, bounds) -> t
     full = set()  # grid cells where an anchor found no spot at all
     for i, (anchor, size) in enumerate(zip(anchors, sizes)):
         cell = (int(anchor[0] // grid.cell), int(anchor[1] // grid.cell))
-        for k in range(1 if cell in full else len(stages) + 1):
-            far = k > 0
-            cands = ring_candidates(anchor, size, stages[k - 1]) if far else label_candidates(anchor, size, None)
+        beside = label_candidates(anchor, size, None)
+        if cell in full:
+            tries = [beside]
+        else:  # the eight spots and the nearest rings in one pass, then the far rings
+            tries = [np.vstack([beside, ring_candidates(anchor, size, stages[0])]) if stages else beside,
+                     *(ring_candidates(anchor, size, st) for st in stages[1:])]
+        for k, cands in enumerate(tries):
             ok = inside(cands, bounds)
             if ok.any():
                 ok[ok] = ~grid.hits(cands[ok])
             if ok.any():
-                boxes[i] = cands[np.argmax(ok)]
-                leader[i] = far
+                first = int(np.argmax(ok))
+                boxes[i] = cands[first]
+                leader[i] = k > 0 or first >= len(beside)
                 grid.add(boxes[i])
                 break
         else:
@@ -574,7 +585,9 @@ def _a(v) -> str:
 
 
 def _pts(xy: np.ndarray) -> str:
-    return " ".join(f"{x:.1f},{y:.1f}" for x, y in xy)
+    """Pixel points as an SVG ``points`` list, to 0.1 px (one format call for the whole line)."""
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    return " ".join(["%.1f,%.1f"] * len(xy)) % tuple(xy.ravel().tolist())
 
 
 def _road_paths(roads: list[MapRoad], view: View) -> tuple[list[str], dict]:
