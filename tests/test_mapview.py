@@ -14,8 +14,8 @@ import pytest
 import shapely
 
 from pipeline.core.units import OutputUnits
-from pipeline.outputs.mapview import (MARKER_R, map_inputs, map_svg, oriented_overlaps, place_labels, scale_bar,
-                                      text_width)
+from pipeline.outputs.mapview import (MARKER_R, BoxGrid, map_inputs, map_svg, oriented_overlaps, place_labels,
+                                      scale_bar, text_width)
 
 NS = "{http://www.w3.org/2000/svg}"
 
@@ -155,6 +155,65 @@ def test_place_labels_keeps_inside_and_apart():
     assert (boxes[:, 3] <= 300).all()
     assert _no_two_overlap(list(boxes) + list(obstacle))
     assert np.allclose(boxes[:, 2] - boxes[:, 0], sizes[:, 0]) and np.allclose(boxes[:, 3] - boxes[:, 1], 16.0)
+
+
+def test_box_grid_agrees_with_shapely():
+    """The grid of placed boxes answers as the all-pairs test: 300 random boxes (some beyond the
+    grid's bounds, some edges on cell lines, some touching a candidate exactly) against 400
+    candidates grown by 1 px; a candidate hits when its grown box shares area with a filed box
+    (shapely's intersection area as reference)."""
+    rng = np.random.default_rng(3)
+
+    def boxes(n):
+        xy = rng.uniform(-60, 460, (n, 2))
+        wh = rng.uniform(2, 70, (n, 2))
+        xy[: n // 5] = np.round(xy[: n // 5] / 32) * 32  # on cell lines
+        return np.column_stack([xy, xy + wh])
+
+    filed, cands = boxes(300), boxes(400)
+    cands[:20, 2] = filed[:20, 0] - 1.0  # grown by 1 px, these touch a filed box's left edge only
+    cands[:20, 0] = cands[:20, 2] - 10.0
+    cands[:20, 1], cands[:20, 3] = filed[:20, 1], filed[:20, 3]
+    grid = BoxGrid((0.0, 0.0, 400.0, 300.0))
+    grid.add(filed[:150])
+    grid.add(filed[150:])
+    got = grid.hits(cands, pad=1.0)
+    polys = [shapely.box(*b) for b in filed]
+    want = [any(shapely.box(c[0] - 1, c[1] - 1, c[2] + 1, c[3] + 1).intersection(p).area > 0 for p in polys)
+            for c in cands]
+    assert got.tolist() == want
+    assert 0 < sum(want) < len(want)
+
+
+def test_crowded_network_labels_or_lists_every_stretch():
+    """Sixty roads 6 km long crossing in a 6 km square with 300 stretches, more than the frame
+    has room for: each rank is labelled once or listed once under the drawing, no two labels
+    overlap, and no label meets a road name's rotated rectangle (shapely as reference); common
+    practice, no source."""
+    rng = np.random.default_rng(11)
+    lines = {}
+    for k in range(60):
+        start, heading = rng.uniform(0, 6_000, 2), rng.uniform(0, 2 * np.pi)
+        turn = heading + np.cumsum(rng.normal(0, 0.05, 120))
+        lines[f"C{k:02d}"] = start + np.cumsum(np.column_stack([np.cos(turn), np.sin(turn)]) * 50.0, axis=0)
+    table = _roads(lines, {r: f"Lane {r[1:]}" for r in lines})
+    road = rng.integers(0, 60, 300)
+    start = rng.uniform(0, 5_500, 300)
+    inv = _inventory([(k + 1, f"C{road[k]:02d}", start[k], start[k] + 120.0, ("minor", "moderate", "severe")[k % 3],
+                       "deficient", 1) for k in range(300)])
+    _, root = _svg(table, inv)
+    panel = _panels(root)[0]
+    boxes = _label_boxes(panel)
+    listed = [int(t.get("data-rank")) for t in panel.iter(f"{NS}text") if t.get("class") == "rank-entry"]
+    assert boxes and listed
+    assert sorted(list(boxes) + listed) == list(range(1, 301))
+    polys = [shapely.box(*b) for b in boxes.values()]
+    tree = shapely.STRtree(polys)
+    i, j = tree.query(polys, predicate="intersects")
+    assert all(polys[a].intersection(polys[b]).area == 0 for a, b in zip(i, j) if a != b)
+    names = [_rotated(t.get("data-box")) for t in panel.iter(f"{NS}text") if t.get("class") == "road-label"]
+    assert names
+    assert all(n.intersection(p).area < 1e-9 for n in names for p in tree.geometries.take(tree.query(n)))
 
 
 def test_rotated_box_overlap_agrees_with_shapely():

@@ -14,6 +14,11 @@ that finds no spot goes to a row under the drawing, joined to its marker by a le
 no two labels ever print over each other. Roads are named along their line where the name
 fits straight and free.
 
+The boxes placed are kept in a uniform grid (:class:`BoxGrid`), so each test looks only at the
+boxes near a spot, and all spots of a label or a road name are tested in one numpy pass: the
+cost grows with the number of stretches and roads, not its square. Road lines are simplified
+to half a pixel before they are drawn and named.
+
 A network whose roads lie in groups far apart (its bounding box mostly empty, or very long and
 thin) gets an overview and one inset per group, a group too long for its panel being cut into
 pieces; the groups are the connected sets of road bounding boxes closer than a gap. Each inset
@@ -25,6 +30,7 @@ Hover shows a stretch's rank, road, chainage range, kind, shortfall and verdict 
 
 from __future__ import annotations
 
+import functools
 import html
 import math
 from dataclasses import dataclass, field
@@ -180,6 +186,7 @@ def hover_text(d, name: str, units, linked: bool) -> str:
 
 
 # ------------------------------------------------------------------ text and boxes
+@functools.lru_cache(maxsize=4096)
 def text_width(text: str, size: float, bold: bool = False) -> float:
     """Width of a line of text (px), from DejaVu Sans advance widths rounded up."""
     adv = _ADVANCE[bold]
@@ -248,13 +255,133 @@ def label_candidates(anchor, size, radius: float | None) -> np.ndarray:
     return np.column_stack([c[:, 0] - w / 2, c[:, 1] - h / 2, c[:, 0] + w / 2, c[:, 1] + h / 2])
 
 
-def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, bounds) -> tuple:
+_FAR = 1e9  # px; an empty slot of the grid holds a box this far off, which meets nothing
+
+
+class BoxGrid:
+    """Axis-aligned boxes (px) in a uniform grid hash, for overlap tests that stay local.
+
+    Each box is filed under every cell of ``cell`` px it meets (cells outside the grid's
+    ``bounds`` are clamped to its edge, which keeps the test exact, only less sharp there),
+    together with its oriented rectangle (:func:`as_oriented`; a road name's own). A query
+    gathers the boxes filed under the cells a candidate meets and tests those alone, so its
+    cost does not grow with the number of boxes placed. Common practice in spatial indexing,
+    no single source.
+
+    Parameters
+    ----------
+    bounds : tuple of float
+        The area queried (x0, y0, x1, y1; px).
+    cell : float
+        The cell's side (px); about a rank label's size.
+    """
+
+    def __init__(self, bounds, cell: float = 32.0):
+        self.x0, self.y0 = float(bounds[0]), float(bounds[1])
+        self.cell = float(cell)
+        self.nx = max(int(math.ceil((bounds[2] - bounds[0]) / cell)), 1)
+        self.ny = max(int(math.ceil((bounds[3] - bounds[1]) / cell)), 1)
+        self.n = 0
+        # per cell (the last one always empty), slots of box (4) and oriented rectangle (6)
+        self.slots = self._empty(self.nx * self.ny + 1, 4)
+        self.count = np.zeros(self.nx * self.ny + 1, dtype=np.int64)
+
+    @staticmethod
+    def _empty(cells: int, depth: int) -> np.ndarray:
+        out = np.zeros((cells, depth, 10))
+        out[..., :2] = out[..., 6:8] = _FAR  # a point box far off
+        out[..., 8] = 1.0
+        return out
+
+    def _cells(self, boxes: np.ndarray, pad: float = 0.0) -> tuple:
+        """Each box's cell range (ix0, iy0, ix1, iy1; inclusive, clamped to the grid)."""
+        b = np.asarray(boxes, dtype=float).reshape(-1, 4)
+        # truncation is the floor here: what lies left of or above the grid is clamped to 0
+        i = ((b + [-pad, -pad, pad, pad] - [self.x0, self.y0, self.x0, self.y0]) / self.cell).astype(np.int64)
+        i = np.minimum(np.maximum(i, 0), [self.nx - 1, self.ny - 1, self.nx - 1, self.ny - 1])
+        return i[:, 0], i[:, 1], i[:, 2], i[:, 3]
+
+    def add(self, boxes: np.ndarray, solid: np.ndarray | None = None) -> None:
+        """File boxes (m, 4); ``solid`` their oriented rectangles (m, 6), by default the boxes."""
+        boxes = np.asarray(boxes, dtype=float).reshape(-1, 4)
+        solid = as_oriented(boxes) if solid is None else np.asarray(solid, dtype=float).reshape(-1, 6)
+        ix0, iy0, ix1, iy1 = self._cells(boxes)
+        for k in range(len(boxes)):
+            r, c = np.mgrid[iy0[k]:iy1[k] + 1, ix0[k]:ix1[k] + 1]
+            cells = (r * self.nx + c).ravel()
+            at = self.count[cells]
+            if at.max() >= self.slots.shape[1]:
+                self.slots = np.concatenate([self.slots, self._empty(len(self.slots), self.slots.shape[1])], axis=1)
+            self.slots[cells, at, :4] = boxes[k]
+            self.slots[cells, at, 4:] = solid[k]
+            self.count[cells] = at + 1
+        self.n += len(boxes)
+
+    def near(self, cands: np.ndarray, pad: float = 1.0, cols=slice(0, 4)) -> tuple[np.ndarray, np.ndarray]:
+        """The boxes filed under the cells each candidate box (k, 4) meets, grown by ``pad``:
+        (t, 4) boxes (``cols`` slice(0, 10) adds their oriented rectangles) and, for each, the
+        candidate it is near (t,); a box may appear twice."""
+        ix0, iy0, ix1, iy1 = self._cells(cands, pad)
+        sx, sy = int((ix1 - ix0).max()) + 1, int((iy1 - iy0).max()) + 1
+        cx = ix0[:, None, None] + np.arange(sx)[None, None, :]
+        cy = iy0[:, None, None] + np.arange(sy)[None, :, None]
+        cells = np.where((cx <= ix1[:, None, None]) & (cy <= iy1[:, None, None]), cy * self.nx + cx,
+                         len(self.count) - 1).ravel()
+        cnt = self.count[cells]
+        total = int(cnt.sum())
+        pair = np.repeat(np.arange(len(cells)), cnt)  # each (candidate, cell) once per box filed there
+        slot = np.arange(total) - np.repeat(np.cumsum(cnt) - cnt, cnt)
+        rows = cells[pair] * self.slots.shape[1] + slot
+        return np.take(self.slots.reshape(-1, 10), rows, axis=0)[:, cols], pair // (sx * sy)
+
+    def hits(self, cands: np.ndarray, pad: float = 1.0) -> np.ndarray:
+        """Whether each candidate box (k, 4), grown by ``pad`` px, overlaps a filed box;
+        touching is not overlapping (as :func:`overlaps`)."""
+        cands = np.asarray(cands, dtype=float).reshape(-1, 4)
+        if not self.n or not len(cands):
+            return np.zeros(len(cands), dtype=bool)
+        b, owner = self.near(cands, pad)
+        c = cands[owner]
+        hit = ((c[:, 0] - pad < b[:, 2]) & (b[:, 0] < c[:, 2] + pad)
+               & (c[:, 1] - pad < b[:, 3]) & (b[:, 1] < c[:, 3] + pad))
+        return np.bincount(owner[hit], minlength=len(cands)) > 0
+
+
+def _ring_table(reach: float) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """The rings out to ``reach`` (:func:`label_candidates`) as (radius, cos, sin) arrays, in
+    stages of growing size (the nearest four rings, then the rest), so that a label finds
+    its first free spot in one or two passes."""
+    rings = []
+    for r in _rings(reach):
+        n = int(np.clip(2 * math.pi * r / 16.0, 12, 96))
+        t = np.arange(n) * 2 * math.pi / n
+        rings.append((np.full(n, r), np.cos(t), np.sin(t)))
+    stages = [rings[:4], rings[4:]]
+    return [tuple(np.concatenate(part) for part in zip(*st)) for st in stages if st]
+
+
+def ring_candidates(anchor, size, stage) -> np.ndarray:
+    """The candidate boxes of one stage of rings (:func:`_ring_table`) around ``anchor``
+    (px), in the order :func:`label_candidates` gives them ring by ring."""
+    w, h = size
+    r, cos, sin = stage
+    cx = anchor[0] + r * cos + np.sign(cos) * w / 2
+    cy = anchor[1] - r * sin
+    return np.column_stack([cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2])
+
+
+def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles, bounds) -> tuple:
     """Greedy label placement with box overlap tests.
 
     Each label, in the order given, takes the first candidate position
     (:func:`label_candidates`: next to its anchor, then rings further out) whose box lies in
     ``bounds`` and overlaps neither an obstacle nor a label placed before. Common practice in
-    map labelling, no single source.
+    map labelling, no single source. The boxes are tested through a :class:`BoxGrid`, so each
+    label costs about the same however many were placed before; a label tries at most its
+    eight spots and the rings out to :data:`LEADER_MAX` (at most 96 spots a ring). Where a
+    label found no spot at all, the space around its grid cell is taken as full: a later
+    label (as wide or wider, in rank order) anchored in the same cell tries only its eight
+    spots, which keeps a crowded map's cost linear in its labels.
 
     Parameters
     ----------
@@ -262,8 +389,8 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, 
         The points labelled (px).
     sizes : ndarray, shape (n, 2)
         Each label's width and height (px).
-    obstacles : ndarray, shape (m, 4)
-        Boxes no label may cover (x0, y0, x1, y1; px).
+    obstacles : ndarray, shape (m, 4), or BoxGrid
+        Boxes no label may cover (x0, y0, x1, y1; px); a grid gets the placed labels added.
     bounds : tuple of float
         The box every label must lie in.
 
@@ -274,32 +401,36 @@ def place_labels(anchors: np.ndarray, sizes: np.ndarray, obstacles: np.ndarray, 
     leader : ndarray of bool, shape (n,)
         Whether the label sits away from its anchor (draw a leader line).
     """
-    taken = np.asarray(obstacles, dtype=float).reshape(-1, 4)
+    if isinstance(obstacles, BoxGrid):
+        grid = obstacles
+    else:
+        grid = BoxGrid(bounds)
+        grid.add(np.asarray(obstacles, dtype=float).reshape(-1, 4))
     boxes = np.full((len(anchors), 4), np.nan)
     leader = np.zeros(len(anchors), dtype=bool)
-    reach = min(math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1]), LEADER_MAX)
+    stages = _ring_table(min(math.hypot(bounds[2] - bounds[0], bounds[3] - bounds[1]), LEADER_MAX))
+    full = set()  # grid cells where an anchor found no spot at all
     for i, (anchor, size) in enumerate(zip(anchors, sizes)):
-        for radius in [None, *_rings(reach)]:
-            cands = label_candidates(anchor, size, radius)
+        cell = (int(anchor[0] // grid.cell), int(anchor[1] // grid.cell))
+        beside = label_candidates(anchor, size, None)
+        if cell in full:
+            tries = [beside]
+        else:  # the eight spots and the nearest rings in one pass, then the far rings
+            tries = [np.vstack([beside, ring_candidates(anchor, size, stages[0])]) if stages else beside,
+                     *(ring_candidates(anchor, size, st) for st in stages[1:])]
+        for k, cands in enumerate(tries):
             ok = inside(cands, bounds)
             if ok.any():
-                near = taken[_near(taken, anchor, (radius or 0.0) + size[0] + size[1] + 4.0)]
-                ok &= ~overlaps(cands, near)
+                ok[ok] = ~grid.hits(cands[ok])
             if ok.any():
-                boxes[i] = cands[np.argmax(ok)]
-                leader[i] = radius is not None
-                taken = np.vstack([taken, boxes[i]])
+                first = int(np.argmax(ok))
+                boxes[i] = cands[first]
+                leader[i] = k > 0 or first >= len(beside)
+                grid.add(boxes[i])
                 break
+        else:
+            full.add(cell)
     return boxes, leader
-
-
-def _near(boxes: np.ndarray, point, reach: float) -> np.ndarray:
-    """Which boxes come within ``reach`` of a point (a cheap pre-filter)."""
-    if not len(boxes):
-        return np.zeros(0, dtype=bool)
-    x, y = point
-    return ((boxes[:, 0] - reach <= x) & (x <= boxes[:, 2] + reach)
-            & (boxes[:, 1] - reach <= y) & (y <= boxes[:, 3] + reach))
 
 
 # ------------------------------------------------------------------ grouping and panels
@@ -454,7 +585,9 @@ def _a(v) -> str:
 
 
 def _pts(xy: np.ndarray) -> str:
-    return " ".join(f"{x:.1f},{y:.1f}" for x, y in xy)
+    """Pixel points as an SVG ``points`` list, to 0.1 px (one format call for the whole line)."""
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    return " ".join(["%.1f,%.1f"] * len(xy)) % tuple(xy.ravel().tolist())
 
 
 def _road_paths(roads: list[MapRoad], view: View) -> tuple[list[str], dict]:
@@ -466,7 +599,7 @@ def _road_paths(roads: list[MapRoad], view: View) -> tuple[list[str], dict]:
         line = shapely.LineString(r.xy) if len(r.xy) > 1 else None
         if line is None or not line.intersects(seen):
             continue
-        xy = view.px(shapely.get_coordinates(shapely.simplify(line, 0.5 / view.s)))
+        xy = view.px(shapely.get_coordinates(shapely.simplify(line, 0.5 / view.s, preserve_topology=False)))
         style = (f"stroke='{SKIPPED_GREY}' stroke-width='1.4' stroke-dasharray='2 3'" if r.skipped
                  else f"stroke='{ROAD_GREY}' stroke-width='1.8'")
         out.append(f"<polyline class='road' points='{_pts(xy)}' fill='none' {style} stroke-linejoin='round'>"
@@ -539,43 +672,49 @@ def _marker_boxes(points: np.ndarray) -> np.ndarray:
 FRACTIONS = tuple(sorted(np.round(np.arange(0.04, 0.97, 0.04), 2), key=lambda f: (abs(f - 0.5), f)))
 
 
-def road_label_candidates(xy: np.ndarray, text: str) -> list[tuple[float, float, float, np.ndarray, np.ndarray]]:
-    """Spots along a pixel line for a name: (x, y, angle in degrees, box, oriented box), best first.
+def road_label_candidates(xy: np.ndarray, text: str) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Spots along a pixel line for a name, best first: centres (k, 2), angles in degrees (k,),
+    boxes (k, 4) and oriented boxes (k, 6).
 
     The name runs along the chord of the line under it, upright, beside the line (just
-    above, just below, then a little further off either side); a
-    spot is kept only where the line under the name is nearly straight (chord at least 85 %
-    of the name's length). ``box`` is the rotated name's axis-aligned bounding box,
-    ``oriented box`` the name's own rectangle (:func:`oriented_overlaps`).
+    above, just below, then a little further off either side), at :data:`FRACTIONS` of the
+    line's length; a spot is kept only where the line under the name is nearly straight
+    (chord at least 85 % of the name's length). ``box`` is the rotated name's axis-aligned
+    bounding box, ``oriented box`` the name's own rectangle (:func:`oriented_overlaps`). All
+    spots are computed at once (numpy).
     """
+    none = (np.zeros((0, 2)), np.zeros(0), np.zeros((0, 4)), np.zeros((0, 6)))
     tw, half_h = text_width(text, ROAD_FONT), ROAD_FONT * 0.65
     seg = np.hypot(*np.diff(xy, axis=0).T)
     cum = np.concatenate([[0.0], np.cumsum(seg)])
     if cum[-1] < tw * 1.1:
-        return []
+        return none
 
     def at(s):
-        return np.array([np.interp(s, cum, xy[:, 0]), np.interp(s, cum, xy[:, 1])])
+        return np.column_stack([np.interp(s, cum, xy[:, 0]), np.interp(s, cum, xy[:, 1])])
 
-    out = []
-    for f in FRACTIONS:
-        c = f * cum[-1]
-        if c - tw / 2 < 0 or c + tw / 2 > cum[-1]:
-            continue
-        chord = at(c + tw / 2) - at(c - tw / 2)
-        if np.hypot(*chord) < 0.85 * tw:
-            continue
-        ang = math.degrees(math.atan2(chord[1], chord[0]))
-        ang = ang - 180 if ang > 90 else ang + 180 if ang < -90 else ang
-        t = math.radians(ang)
-        normal = np.array([math.sin(t), -math.cos(t)])  # screen "up" for upright text
-        hx = abs(math.cos(t)) * tw / 2 + abs(math.sin(t)) * half_h
-        hy = abs(math.sin(t)) * tw / 2 + abs(math.cos(t)) * half_h
-        for side in (1.0, -1.0, 2.6, -2.6):
-            x, y = at(c) + side * normal * (half_h + 3.5)
-            out.append((float(x), float(y), ang, np.array([x - hx, y - hy, x + hx, y + hy]),
-                        np.array([x, y, tw / 2, half_h, math.cos(t), math.sin(t)])))
-    return out
+    c = np.asarray(FRACTIONS) * cum[-1]
+    c = c[(c - tw / 2 >= 0) & (c + tw / 2 <= cum[-1])]
+    chord = at(c + tw / 2) - at(c - tw / 2)
+    keep = np.hypot(chord[:, 0], chord[:, 1]) >= 0.85 * tw
+    c, chord = c[keep], chord[keep]
+    if not len(c):
+        return none
+    ang = np.degrees(np.arctan2(chord[:, 1], chord[:, 0]))
+    ang = np.where(ang > 90, ang - 180, np.where(ang < -90, ang + 180, ang))
+    t = np.radians(ang)
+    cos, sin = np.cos(t), np.sin(t)
+    normal = np.column_stack([sin, -cos])  # screen "up" for upright text
+    hx = np.abs(cos) * tw / 2 + np.abs(sin) * half_h
+    hy = np.abs(sin) * tw / 2 + np.abs(cos) * half_h
+    side = np.array([1.0, -1.0, 2.6, -2.6])
+    centre = (at(c)[:, None, :] + side[None, :, None] * normal[:, None, :] * (half_h + 3.5)).reshape(-1, 2)
+    rep = np.repeat  # four sides per fraction, in fraction order
+    hx, hy, cos, sin, ang = rep(hx, 4), rep(hy, 4), rep(cos, 4), rep(sin, 4), rep(ang, 4)
+    x, y = centre[:, 0], centre[:, 1]
+    box = np.column_stack([x - hx, y - hy, x + hx, y + hy])
+    obb = np.column_stack([x, y, np.full(len(x), tw / 2), np.full(len(x), half_h), cos, sin])
+    return centre, ang, box, obb
 
 
 def as_oriented(boxes: np.ndarray) -> np.ndarray:
@@ -595,56 +734,61 @@ def oriented_overlaps(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> 
     """
     if not len(others):
         return False
-    hwa, hha, ux, uy = box[2] + pad, box[3] + pad, box[4], box[5]
-    dx, dy = others[:, 0] - box[0], others[:, 1] - box[1]
-    hwb, hhb, ox, oy = others[:, 2], others[:, 3], others[:, 4], others[:, 5]
+    return bool(_oriented_hits(np.asarray(box, dtype=float)[None, None, :],
+                               np.asarray(others, dtype=float)[None], pad).any())
+
+
+def _oriented_hits(box: np.ndarray, others: np.ndarray, pad: float = 1.0) -> np.ndarray:
+    """Element-wise separating axis test (:func:`oriented_overlaps`) of oriented boxes
+    (..., 6), the first grown by ``pad``; broadcasts."""
+    hwa, hha, ux, uy = box[..., 2] + pad, box[..., 3] + pad, box[..., 4], box[..., 5]
+    dx, dy = others[..., 0] - box[..., 0], others[..., 1] - box[..., 1]
+    hwb, hhb, ox, oy = others[..., 2], others[..., 3], others[..., 4], others[..., 5]
     c, sn = np.abs(ux * ox + uy * oy), np.abs(uy * ox - ux * oy)  # |cos|, |sin| of the angle between them
     apart = ((np.abs(dx * ux + dy * uy) >= hwa + hwb * c + hhb * sn)
              | (np.abs(dy * ux - dx * uy) >= hha + hwb * sn + hhb * c)
              | (np.abs(dx * ox + dy * oy) >= hwb + hwa * c + hha * sn)
              | (np.abs(dy * ox - dx * oy) >= hhb + hwa * sn + hha * c))
-    return bool((~apart).any())
+    return ~apart
 
 
-def place_road_names(lines: dict, taken: np.ndarray, bounds) -> tuple[list[str], np.ndarray, list[str]]:
+def place_road_names(lines: dict, grid: "BoxGrid", bounds) -> tuple[list[str], list[str]]:
     """Each road's name at its first free spot along its longest visible piece (its id where
-    the name fits nowhere); returns the SVG, the boxes now taken (a name by its axis-aligned
-    bounding box) and the roads left unnamed. Names are tested as the rotated rectangles
-    they are against what is taken."""
+    the name fits nowhere); returns the SVG and the roads left unnamed, and files each name in
+    ``grid`` (by its axis-aligned bounding box, and its rectangle for later names). Names are
+    tested as the rotated rectangles they are against what is taken, among the boxes their
+    bounding box meets (all spots of a road, for its name and its id, in one pass)."""
     out, missed = [], []
-    solid, hull = as_oriented(taken), np.asarray(taken, dtype=float).reshape(-1, 4)
     for rid in sorted(lines, key=lambda r: -max(_length(p) for p in lines[r][1])):
         name, parts = lines[rid]
         xy = max(parts, key=_length)
+        texts = list(dict.fromkeys([name, rid]))
+        spots = [road_label_candidates(xy, t) for t in texts]  # the name's spots, then the id's
+        which = np.concatenate([np.full(len(sp[1]), k) for k, sp in enumerate(spots)])
+        centre, ang, box, obb = (np.concatenate(parts) for parts in zip(*spots))
+        ok = np.flatnonzero(inside(box, bounds))
+        if len(ok) and grid.n:
+            near, owner = grid.near(box[ok], cols=slice(0, 10))
+            b, o = box[ok][owner], obb[ok][owner]
+            meet = ((b[:, 0] - 1.0 < near[:, 2]) & (near[:, 0] < b[:, 2] + 1.0)
+                    & (b[:, 1] - 1.0 < near[:, 3]) & (near[:, 1] < b[:, 3] + 1.0))
+            meet[meet] = _oriented_hits(o[meet], near[meet, 4:])
+            ok = ok[np.bincount(owner[meet], minlength=len(ok)) == 0]
         spot = None
-        for text in dict.fromkeys([name, rid]):
-            for x, y, ang, box, obb in road_label_candidates(xy, text):
-                if not inside(box[None], bounds)[0]:
-                    continue
-                near = _hits(box, hull)  # only what the name's bounding box meets can overlap it
-                if not near.any() or not oriented_overlaps(obb, solid[near]):
-                    spot = (text, x, y, ang, box, obb)
-                    break
-            if spot:
-                break
+        if len(ok):
+            k = ok[0]
+            spot = (texts[which[k]], float(centre[k, 0]), float(centre[k, 1]), float(ang[k]), box[k], obb[k])
         if spot is None:
             missed.append(rid)
             continue
         text, x, y, ang, box, obb = spot
-        taken = np.vstack([taken, box])
-        solid, hull = np.vstack([solid, obb]), np.vstack([hull, box])
+        grid.add(box, obb)
         out.append(f"<text class='road-label' data-road='{_a(rid)}' data-box='{' '.join(f'{v:.3f}' for v in obb)}' "
                    f"x='{x:.1f}' y='{y:.1f}' transform='rotate({ang:.1f} {x:.1f} {y:.1f})' text-anchor='middle' "
                    f"dominant-baseline='central' font-size='{ROAD_FONT}' fill='#333333' stroke='white' "
                    f"stroke-width='3' paint-order='stroke' textLength='{text_width(text, ROAD_FONT):.1f}' "
                    f"lengthAdjust='spacingAndGlyphs'>{_a(text)}<title>{_a(name)} ({_a(rid)})</title></text>")
-    return out, taken, missed
-
-
-def _hits(box: np.ndarray, boxes: np.ndarray, pad: float = 1.0) -> np.ndarray:
-    """Which of ``boxes`` (m, 4) meet ``box`` (4,) grown by ``pad``."""
-    return ((box[0] - pad < boxes[:, 2]) & (boxes[:, 0] < box[2] + pad)
-            & (box[1] - pad < boxes[:, 3]) & (boxes[:, 1] < box[3] + pad))
+    return out, missed
 
 
 def _length(xy: np.ndarray) -> float:
@@ -735,16 +879,17 @@ def render_panel(panel: Panel, roads: list[MapRoad], stretches: list[MapStretch]
     seen = v.seen()
     extra = [s for s in others if seen[0] <= s.anchor[0] <= seen[2] and seen[1] <= s.anchor[1] <= seen[3]]
     extra_pts = v.px(np.array([s.anchor for s in extra])) if extra else np.zeros((0, 2))
-    taken = _marker_boxes(np.vstack([pts, extra_pts]))
+    taken = BoxGrid(frame)
+    taken.add(_marker_boxes(np.vstack([pts, extra_pts])))
     body = road_svg + _stretch_paths(list(stretches) + extra, v)
     over, labels = [], []
     if panel.kind == "overview":
-        outlines, labels, taken = _inset_outlines(insets, v, taken)
+        outlines, labels = _inset_outlines(insets, v, taken)
         body += outlines + [_marker(s, p) for s, p in zip(stretches, pts)]
     else:
-        leaders, marks, labels, taken, over = _rank_labels(stretches, pts, taken, frame)
+        leaders, marks, labels, over = _rank_labels(stretches, pts, taken, frame)
         body += leaders + [_marker(s, p) for s, p in zip(extra, extra_pts)] + marks
-        names, taken, _ = place_road_names(lines, taken, frame)
+        names, _ = place_road_names(lines, taken, frame)
         labels = names + labels
     clip = f"map-clip-{panel.key}"
     parts = [f"<g class='panel' data-kind='{panel.kind}' data-letter='{_a(panel.letter)}' "
@@ -765,8 +910,8 @@ def render_panel(panel: Panel, roads: list[MapRoad], stretches: list[MapStretch]
 
 
 def _rank_labels(stretches, pts, taken, frame):
-    """Rank labels placed in rank order; returns leaders, markers, labels, boxes taken and the
-    stretches left for the row under the frame."""
+    """Rank labels placed in rank order (each filed in the grid ``taken``); returns leaders,
+    markers, labels and the stretches left for the row under the frame."""
     order = np.argsort([s.rank for s in stretches], kind="stable")
     sizes = np.array([rank_label_size(stretches[i].rank) for i in order]).reshape(-1, 2)
     boxes, leader = place_labels(pts[order], sizes, taken, frame)
@@ -777,9 +922,8 @@ def _rank_labels(stretches, pts, taken, frame):
             continue
         leaders.append(_leader(pts[i], boxes[k]))  # a tick even for a label next to its marker, so pairs read right
         labels.append(_rank_label(stretches[i], boxes[k]))
-    placed = boxes[~np.isnan(boxes[:, 0])]
     marks = [_marker(s, p) for s, p in zip(stretches, pts)]
-    return leaders, marks, labels, np.vstack([taken, placed]), over
+    return leaders, marks, labels, over
 
 
 OVERFLOW_LEADERS = 12  # up to this many labels without room get boxes and leader lines; more are listed
@@ -819,9 +963,9 @@ def _overflow_row(over: list, width: float, y: float) -> tuple[str, float]:
     return "".join(parts), y + 8.0
 
 
-def _inset_outlines(insets: list[Panel], view: View, taken: np.ndarray) -> tuple[list[str], list[str], np.ndarray]:
+def _inset_outlines(insets: list[Panel], view: View, taken: BoxGrid) -> tuple[list[str], list[str]]:
     """Each inset's window outlined on the overview and lettered at a free spot by its upper
-    left corner; returns the outlines, the letters and the boxes now taken."""
+    left corner (filed in the grid ``taken``); returns the outlines and the letters."""
     outlines, letters = [], []
     for p in insets:
         a, b = view.px(p.view.window[[0, 3]])[0], view.px(p.view.window[[2, 1]])[0]
@@ -834,12 +978,11 @@ def _inset_outlines(insets: list[Panel], view: View, taken: np.ndarray) -> tuple
         if np.isnan(boxes[0, 0]):
             continue
         x0, y0, x1, y1 = boxes[0]
-        taken = np.vstack([taken, boxes[0]])
         letters.append(f"<g class='inset-letter'><rect x='{x0:.1f}' y='{y0:.1f}' width='{x1 - x0:.1f}' "
                        f"height='{y1 - y0:.1f}' fill='{INSET_INK}'/><text x='{(x0 + x1) / 2:.1f}' "
                        f"y='{(y0 + y1) / 2:.1f}' text-anchor='middle' dominant-baseline='central' font-size='12' "
                        f"font-weight='bold' fill='white'>{_a(p.letter)}</text></g>")
-    return outlines, letters, taken
+    return outlines, letters
 
 
 # ------------------------------------------------------------------ the whole map
