@@ -33,7 +33,7 @@ before it bracket the limit, which bisection narrows to ``tol_m``. Lines are tes
 coarse-to-fine: each line is cut into pieces about ``coarse_m`` long, each piece compared with
 the maximum of the obstruction over a block of cells wide enough to hold every cell any fine
 sample of the piece can touch (a conservative bound, so a piece cleared coarsely is clear);
-only pieces not cleared are sampled every half cell. Open ground is cleared almost entirely
+only pieces not cleared are sampled every cell. Open ground is cleared almost entirely
 at the coarse level, which makes the stage fast (plain numpy; numba was not available to
 compare against).
 
@@ -69,8 +69,8 @@ class ObstructionGrid:
     ``z`` heights (m), ``kind`` per cell (``CREST`` = carriageway, ``TERRAIN``, ``OBJECT``),
     ``transform`` the window's affine coefficients ``(a, b, c, d, e, f)`` (``x = a col + b
     row + c``, ``y = d col + e row + f``, col/row at cell corners), ``cell_m`` the cell size (m),
-    ``factor`` the coarse level's block (cells) and ``zc`` its maxima, ``unknown`` the number
-    of nodata cells.
+    ``factor`` the finest coarse level's block (cells), ``levels`` the coarse levels from fine to
+    coarse as ``(block in cells, maxima)``, ``unknown`` the number of nodata cells.
     """
 
     z: np.ndarray
@@ -78,7 +78,7 @@ class ObstructionGrid:
     transform: tuple
     cell_m: float
     factor: int
-    zc: np.ndarray | None
+    levels: list
     unknown: int = 0
 
     def pixel(self, x, y) -> tuple[np.ndarray, np.ndarray]:
@@ -211,7 +211,7 @@ def lane_sides(traffic_side: str) -> dict[str, int]:
 
 def obstruction_grid(dem: np.ndarray, transform, path: LanePath, carriageway_half_width_m: float,
                      surface: np.ndarray | None = None, object_min_height_m: float = 0.5,
-                     coarse_m: float = 8.0) -> ObstructionGrid:
+                     coarse_m: float = 4.0, coarse_levels: int = 2) -> ObstructionGrid:
     """The surface a sight line may hit: ground, roadside objects, and the carriageway from the
     fitted alignment (see the module's notes).
 
@@ -230,8 +230,10 @@ def obstruction_grid(dem: np.ndarray, transform, path: LanePath, carriageway_hal
     object_min_height_m : float, default 0.5
         The surface model counts as a roadside object where it stands at least this much
         above the DEM (m).
-    coarse_m : float, default 8.0
-        Length of the pieces a line is first tested in (m).
+    coarse_m : float, default 4.0
+        Length of the finest coarse pieces a line is tested in (m).
+    coarse_levels : int, default 2
+        Coarse levels, each four times the one below.
 
     Returns
     -------
@@ -251,13 +253,33 @@ def obstruction_grid(dem: np.ndarray, transform, path: LanePath, carriageway_hal
         kind[obj] = OBJECT
         unknown &= ~obj
     z[~np.isfinite(z)] = LOW
-    grid = ObstructionGrid(z=z, kind=kind, transform=t, cell_m=cell, factor=1, zc=None, unknown=int(unknown.sum()))
+    grid = ObstructionGrid(z=z, kind=kind, transform=t, cell_m=cell, factor=1, levels=[], unknown=int(unknown.sum()))
     _burn_carriageway(grid, path, carriageway_half_width_m)
     F = max(int(round(coarse_m / cell)), 1)
     if F > 1:
         grid.factor = F
-        grid.zc = maximum_filter(grid.z, size=2 * F + 3, mode="nearest")[::F, ::F].copy()
+        zc = _node_maxima(grid.z, F)
+        grid.levels.append((F, zc))
+        for _ in range(coarse_levels - 1):
+            # a node 4 blocks up covers the fine cells within 4 F + 1 of it: the nine nodes below around it
+            if min(zc.shape) < 8:
+                break
+            zc = maximum_filter(zc, size=9, mode="nearest")[::4, ::4].copy()
+            F *= 4
+            grid.levels.append((F, zc))
     return grid
+
+
+def _node_maxima(z: np.ndarray, F: int) -> np.ndarray:
+    """For the nodes every ``F`` cells (node ``I`` at cell ``F I``), the maximum of the cells
+    within ``F + 1`` of the node along each axis: maxima of ``F`` x ``F`` blocks first, then of
+    the four blocks around each node (cells ``F I - 2 F`` to ``F I + 2 F - 1``)."""
+    R, C = z.shape
+    Rb, Cb = -(-R // F), -(-C // F)
+    pad = np.full((Rb * F, Cb * F), LOW)
+    pad[:R, :C] = z
+    blocks = pad.reshape(Rb, F, Cb, F).max(axis=(1, 3))
+    return maximum_filter(blocks, size=4, mode="nearest")
 
 
 def _burn_carriageway(grid: ObstructionGrid, path: LanePath, half_width: float) -> None:
@@ -313,7 +335,7 @@ def visible(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> np.ndarray:
     Returns
     -------
     ndarray of bool
-        ``True`` where no point of the bilinear surface, sampled every half cell along the
+        ``True`` where no point of the bilinear surface, sampled every cell along the
         line, stands above it.
 
     Notes
@@ -329,20 +351,28 @@ def visible(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> np.ndarray:
     du, dv, dz = u1 - u0, v1 - v0, z1 - z0
     ell = np.hypot(du, dv)
     F = grid.factor
-    n = np.maximum(np.ceil(ell / F), 1).astype(np.int64)
-    line, k = _pieces(n)
-    nl = n[line]
-    if grid.zc is not None:
-        tm = (k + 0.5) / nl
-        I = np.rint((v0[line] + tm * dv[line]) / F).astype(np.int64)
-        J = np.rint((u0[line] + tm * du[line]) / F).astype(np.int64)
-        Rc, Cc = grid.zc.shape
-        inside = (I >= 0) & (J >= 0) & (I < Rc) & (J < Cc)
-        bound = np.where(inside, grid.zc[np.clip(I, 0, Rc - 1), np.clip(J, 0, Cc - 1)], LOW)
-        zlow = z0[line] + np.minimum(k * dz[line], (k + 1) * dz[line]) / nl  # the line's lower end over the piece
-        keep = bound > zlow
-        line, k, nl = line[keep], k[keep], nl[keep]
-    m = 2 * F  # samples per piece: every half cell at most
+    if grid.levels:
+        top = grid.levels[-1][0]
+        n = np.maximum(np.ceil(ell / top), 1).astype(np.int64)
+        line, k = _pieces(n)
+        nl = n[line]
+        for lev, (Fl, zc) in enumerate(reversed(grid.levels)):
+            if lev:  # each piece kept from the level above is cut in four
+                line, k, nl = np.repeat(line, 4), 4 * np.repeat(k, 4) + np.tile(np.arange(4), len(k)), 4 * np.repeat(nl, 4)
+            tm = (k + 0.5) / nl
+            I = np.rint((v0[line] + tm * dv[line]) / Fl).astype(np.int64)
+            J = np.rint((u0[line] + tm * du[line]) / Fl).astype(np.int64)
+            Rc, Cc = zc.shape
+            inside = (I >= 0) & (J >= 0) & (I < Rc) & (J < Cc)
+            bound = np.where(inside, zc[np.clip(I, 0, Rc - 1), np.clip(J, 0, Cc - 1)], LOW)
+            zlow = z0[line] + np.minimum(k * dz[line], (k + 1) * dz[line]) / nl  # the line's lower end over the piece
+            keep = bound > zlow
+            line, k, nl = line[keep], k[keep], nl[keep]
+    else:
+        n = np.maximum(np.ceil(ell / F), 1).astype(np.int64)
+        line, k = _pieces(n)
+        nl = n[line]
+    m = F  # samples per piece: one a cell
     ll = np.repeat(line, m)
     t = (np.repeat(k, m) + (np.tile(np.arange(m), len(k)) + 0.5) / m) / np.repeat(nl, m)
     ex = grid.sample(u0[ll] + t * du[ll], v0[ll] + t * dv[ll]) - (z0[ll] + t * dz[ll])
@@ -384,27 +414,82 @@ def highest_point(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> tuple[np.nda
     return bx, by, ex[best], t[best], grid.kind_at(u[best], v[best])
 
 
-@dataclass
-class _Way:
-    """One direction's lane path, resolved for the eyes."""
+class _Ways:
+    """The lane paths of one or more directions laid end to end in one distance axis, so that
+    the eyes of every direction are searched together."""
 
-    sign: int
-    lx: np.ndarray
-    ly: np.ndarray
-    A: np.ndarray
-    path: LanePath
+    def __init__(self, path: LanePath, lanes: list[tuple[int, float]]):
+        self.path = path
+        self.start = []
+        xs, ys, As, ss = [], [], [], []
+        base = 0.0
+        for side, offset in lanes:
+            lx, ly, A = path.lane(side * offset)
+            self.start.append(base)
+            xs.append(lx)
+            ys.append(ly)
+            As.append(A + base)
+            ss.append(path.s)
+            base = As[-1][-1] + 1.0e6
+        self.lx, self.ly, self.A, self.s = (np.concatenate(v) for v in (xs, ys, As, ss))
 
-    def at(self, Ae: np.ndarray, d: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def at(self, Ae: np.ndarray, d: np.ndarray, sign: np.ndarray):
         """Position ``x, y`` (m), chainage and road elevation (m) on the lane ``d`` (m) ahead of
-        the points at lane distance ``Ae``."""
-        q = Ae + self.sign * d
-        s = np.interp(q, self.A, self.path.s)
+        the points at (combined) lane distance ``Ae`` in the directions ``sign``."""
+        q = Ae + sign * d
+        s = np.interp(q, self.A, self.s)
         return np.interp(q, self.A, self.lx), np.interp(q, self.A, self.ly), s, self.path.z(s)
+
+
+class _Search:
+    """The first loss of sight for a set of eyes: a ladder of objects outward from a start
+    distance each, then bisection of the bracket (see :func:`sight_one_way`)."""
+
+    def __init__(self, grid, ways, sign, x0, y0, Ae, z0, h2, dmax, step, grow, tol):
+        self.grid, self.ways, self.sign = grid, ways, sign
+        self.x0, self.y0, self.Ae, self.z0, self.h2 = x0, y0, Ae, z0, h2
+        self.dmax, self.step, self.grow, self.tol = dmax, step, grow, tol
+        n = len(x0)
+        self.found = np.zeros(n, dtype=bool)
+        self.lo = np.zeros(n)
+        self.hi = dmax.copy()
+
+    def _visible(self, q: np.ndarray, d: np.ndarray) -> np.ndarray:
+        x1, y1, _, zr = self.ways.at(self.Ae[q], d, self.sign[q])
+        return visible(self.grid, self.x0[q], self.y0[q], self.z0[q], x1, y1, zr + self.h2)
+
+    def run(self, q: np.ndarray, start: np.ndarray) -> None:
+        """Search the eyes ``q``, each trusted to see every object up to ``start`` (m), which is
+        checked first: where it is hidden the eye is searched from itself."""
+        cur = np.asarray(start, dtype=float).copy()
+        warm = cur > 0
+        if warm.any():
+            w = np.flatnonzero(warm)
+            ok = self._visible(q[w], np.minimum(cur[w], self.dmax[q[w]]))
+            cur[w[~ok]] = 0.0
+        act = np.arange(len(q))
+        while len(act):
+            c = cur[act]
+            nxt = np.minimum(c + np.maximum(self.step, self.grow * c), self.dmax[q[act]])
+            vis = self._visible(q[act], nxt)
+            hid = act[~vis]
+            self.found[q[hid]] = True
+            self.lo[q[hid]] = cur[hid]
+            self.hi[q[hid]] = nxt[~vis]
+            cur[act[vis]] = nxt[vis]
+            act = act[vis & (nxt < self.dmax[q[act]] - 1e-9)]
+        f = q[self.found[q]]
+        while len(f) and np.max(self.hi[f] - self.lo[f]) > self.tol:
+            f = f[self.hi[f] - self.lo[f] > self.tol]
+            mid = 0.5 * (self.lo[f] + self.hi[f])
+            vis = self._visible(f, mid)
+            self.lo[f[vis]] = mid[vis]
+            self.hi[f[~vis]] = mid[~vis]
 
 
 def sight_one_way(path: LanePath, grid: ObstructionGrid, rules, lane_side: int, direction: int,
                   lane_offset_m: float, eyes: np.ndarray | None = None, step_m: float = 5.0,
-                  tol_m: float = 0.1) -> dict[str, np.ndarray]:
+                  tol_m: float = 0.25, grow: float = 0.1, warm: int = 16) -> dict[str, np.ndarray]:
     """Available 3D sight distance from the stations, in one direction of travel.
 
     Parameters
@@ -425,10 +510,16 @@ def sight_one_way(path: LanePath, grid: ObstructionGrid, rules, lane_side: int, 
     eyes : ndarray of int, optional
         Indices of the stations to compute (default: all).
     step_m : float, default 5.0
-        Spacing of the objects tried outward from each eye (m); a hidden stretch shorter than
-        this between two visible objects may be missed.
-    tol_m : float, default 0.1
+        Spacing of the first objects tried outward from each eye (m).
+    tol_m : float, default 0.25
         Width the bracket of the first loss of sight is narrowed to (m).
+    grow : float, default 0.1
+        Beyond ``step_m / grow`` the objects tried are this fraction of their distance apart (a
+        hidden stretch shorter than that spacing between two visible objects may be missed).
+    warm : int, default 16
+        One eye in ``warm`` is searched from the eye itself; the next ones from where the eye
+        before them (one station back) lost sight, less the distance between them, after
+        checking that that object is in view (1: every eye from itself).
 
     Returns
     -------
@@ -443,80 +534,102 @@ def sight_one_way(path: LanePath, grid: ObstructionGrid, rules, lane_side: int, 
     The object at distance ``d`` is hidden where ``max over t of G(p(t)) - z(t) > 0`` along the
     segment ``p(t)``, ``z(t) = z_eye + t (z_object - z_eye)`` (0 < t < 1), with ``z_eye`` =
     road + ``eye_height_m`` and ``z_object`` = road + ``object_height_m``. The limit is the
-    first hidden object (ladder of ``step_m``, then bisection to ``tol_m``).
+    first hidden object: objects are tried outward (every ``step_m``, the spacing growing to
+    ``grow`` times the distance), then the bracket of the first hidden one is bisected to
+    ``tol_m``. Consecutive stations see nearly the same lines: an eye one station ahead of an
+    eye that saw every object up to ``S`` is trusted to see every object up to ``S`` less the
+    station spacing, once the line to that object is checked, and searched onward from
+    there (the incremental horizon). It is wrong only where a new obstruction appears
+    within that distance while the object itself stays in view.
     """
+    r = _sight_ways(path, grid, rules, [(lane_side, direction)], lane_offset_m, eyes, step_m, tol_m, grow, warm)
+    return r[0]
+
+
+def _sight_ways(path: LanePath, grid: ObstructionGrid, rules, ways: list[tuple[int, int]], lane_offset_m: float,
+                eyes, step_m: float, tol_m: float, grow: float, warm: int) -> list[dict[str, np.ndarray]]:
+    """:func:`sight_one_way` for several ``(lane_side, direction)`` at once (one search)."""
     idx = np.arange(len(path.s)) if eyes is None else np.asarray(eyes, dtype=np.int64)
-    lx, ly, A = path.lane(lane_side * lane_offset_m)
-    way = _Way(direction, lx, ly, A, path)
+    W = _Ways(path, [(side, lane_offset_m) for side, _ in ways])
+    n = len(path.s)
+    m = len(idx)
     ze = path.z(path.s[idx])
     ok = np.isfinite(ze)
-    zs = path.z(path.s)
-    # the profile ahead ends at the road's end or at the first station without a surface
-    bad = ~np.isfinite(zs)
-    n = len(path.s)
+    bad = ~np.isfinite(path.z(path.s))
     pos = np.arange(n)
-    if direction > 0:
-        nxt = np.minimum.accumulate(np.where(bad, pos, n)[::-1])[::-1]
-        lim_i = np.clip(nxt[idx] - 1, 0, n - 1)
-        dend = A[lim_i] - A[idx]
-    else:
-        prv = np.maximum.accumulate(np.where(bad, pos, -1))
-        lim_i = np.clip(prv[idx] + 1, 0, n - 1)
-        dend = A[idx] - A[lim_i]
+    nxt = np.minimum.accumulate(np.where(bad, pos, n)[::-1])[::-1]
+    prv = np.maximum.accumulate(np.where(bad, pos, -1))
     L = float(rules.lookahead_m)
-    dmax = np.minimum(dend, L)
-    free_kind = np.where(dend < L - 1e-9, END, LOOKAHEAD)
-    m = len(idx)
-    sight = np.full(m, np.nan)
-    limit = np.full(m, END, dtype=np.int8)
-    bxy = np.full((2, m), np.nan)
-    bch = np.full(m, np.nan)
-    e = np.flatnonzero(ok & (dmax > 0))
-    if len(e):
-        Ae = A[idx[e]]
-        x0, y0 = lx[idx[e]], ly[idx[e]]
-        z0 = ze[e] + rules.eye_height_m
-        h2 = rules.object_height_m
-        lo = np.zeros(len(e))
-        hi = dmax[e].copy()
-        found = np.zeros(len(e), dtype=bool)
-        J = int(np.ceil(L / step_m))
-        for j in range(1, J + 1):
-            act = np.flatnonzero(~found & ((j - 1) * step_m < dmax[e] - 1e-9))
-            if not len(act):
-                break
-            d = np.minimum(j * step_m, dmax[e][act])
-            x1, y1, _, zr = way.at(Ae[act], d)
-            vis = visible(grid, x0[act], y0[act], z0[act], x1, y1, zr + h2)
-            hid = act[~vis]
-            found[hid] = True
-            hi[hid] = d[~vis]
-            lo[hid] = (j - 1) * step_m
-        f = np.flatnonzero(found)
-        while len(f) and np.max(hi[f] - lo[f]) > tol_m:
-            mid = 0.5 * (lo[f] + hi[f])
-            x1, y1, _, zr = way.at(Ae[f], mid)
-            vis = visible(grid, x0[f], y0[f], z0[f], x1, y1, zr + h2)
-            lo[f[vis]] = mid[vis]
-            hi[f[~vis]] = mid[~vis]
-        res = np.where(found, 0.5 * (lo + hi), dmax[e])
-        lim = np.where(found, TERRAIN, free_kind[e]).astype(np.int8)
-        if len(f):
-            x1, y1, s1, zr = way.at(Ae[f], hi[f])
-            px, py, _, _, kind = highest_point(grid, x0[f], y0[f], z0[f], x1, y1, zr + h2)
-            lim[f] = kind
-            bxy[0, e[f]], bxy[1, e[f]] = px, py
-            bch[e[f]] = s1
-        sight[e] = res
-        limit[e] = lim
-    z_ok_none = ok & ~(dmax > 0)
-    sight[z_ok_none] = 0.0
-    return {"sight_m": sight, "limit": limit, "block_x": bxy[0], "block_y": bxy[1], "block_chainage_m": bch}
+    cols = {k: [] for k in ("Ae", "sign", "dmax", "free", "x0", "y0", "z0", "w", "i", "order")}
+    for w, (side, direction) in enumerate(ways):
+        A = W.A[w * n:(w + 1) * n]
+        # the profile ahead ends at the road's end or at the first station without a surface
+        if direction > 0:
+            dend = A[np.clip(nxt[idx] - 1, 0, n - 1)] - A[idx]
+        else:
+            dend = A[idx] - A[np.clip(prv[idx] + 1, 0, n - 1)]
+        e = np.flatnonzero(ok & (np.minimum(dend, L) > 0))
+        cols["Ae"].append(A[idx[e]])
+        cols["sign"].append(np.full(len(e), direction, dtype=float))
+        cols["dmax"].append(np.minimum(dend, L)[e])
+        cols["free"].append(np.where(dend[e] < L - 1e-9, END, LOOKAHEAD))
+        cols["x0"].append(W.lx[w * n + idx[e]])
+        cols["y0"].append(W.ly[w * n + idx[e]])
+        cols["z0"].append(ze[e] + rules.eye_height_m)
+        cols["w"].append(np.full(len(e), w))
+        cols["i"].append(e)
+        # eyes in the order of travel, per direction
+        cols["order"].append(np.argsort(idx[e] * direction, kind="stable"))
+    offs = np.cumsum([0] + [len(v) for v in cols["i"]])
+    c = {k: np.concatenate(v) for k, v in cols.items() if k != "order"}
+    out = [{"sight_m": np.where(ok, 0.0, np.nan), "limit": np.full(m, END, dtype=np.int8),
+            "block_x": np.full(m, np.nan), "block_y": np.full(m, np.nan), "block_chainage_m": np.full(m, np.nan)}
+           for _ in ways]
+    if not len(c["i"]):
+        return out
+    srch = _Search(grid, W, c["sign"], c["x0"], c["y0"], c["Ae"], c["z0"], rules.object_height_m, c["dmax"],
+                   step_m, grow, tol_m)
+    # every ``warm``-th eye is searched from itself, the others from where the eye before them
+    # (in the order of travel) lost sight (see the notes)
+    orders = [offs[w] + o for w, o in enumerate(cols["order"])]
+    rank = np.empty(len(c["i"]), dtype=np.int64)
+    prev = np.full(len(c["i"]), -1, dtype=np.int64)
+    for o in orders:
+        rank[o] = np.arange(len(o))
+        prev[o[1:]] = o[:-1]
+    for p in range(warm):
+        q = np.flatnonzero(rank % warm == p)
+        start = np.zeros(len(q))
+        if p:
+            pq = prev[q]
+            g = np.abs(c["Ae"][q] - c["Ae"][pq])
+            sp = np.where(srch.found[pq], srch.lo[pq], srch.dmax[pq]) - g - tol_m
+            start = np.where(g <= 2 * step_m, np.maximum(sp, 0.0), 0.0)
+        srch.run(q, start)
+    found, lo, hi = srch.found, srch.lo, srch.hi
+    res = np.where(found, 0.5 * (lo + hi), c["dmax"])
+    lim = np.where(found, TERRAIN, c["free"]).astype(np.int8)
+    bx = np.full(len(res), np.nan)
+    by = np.full(len(res), np.nan)
+    bch = np.full(len(res), np.nan)
+    f = np.flatnonzero(found)
+    if len(f):
+        x1, y1, s1, zr = W.at(c["Ae"][f], hi[f], c["sign"][f])
+        bx[f], by[f], _, _, lim[f] = highest_point(grid, c["x0"][f], c["y0"][f], c["z0"][f], x1, y1,
+                                                   zr + rules.object_height_m)
+        bch[f] = s1
+    for w in range(len(ways)):
+        sl = slice(offs[w], offs[w + 1])
+        e = c["i"][sl]
+        out[w]["sight_m"][e] = res[sl]
+        out[w]["limit"][e] = lim[sl]
+        out[w]["block_x"][e], out[w]["block_y"][e], out[w]["block_chainage_m"][e] = bx[sl], by[sl], bch[sl]
+    return out
 
 
 def sight_3d_both_ways(path: LanePath, grid: ObstructionGrid, rules, lane_width_m: float = 3.6,
                        traffic_side: str = "right", eyes: np.ndarray | None = None, step_m: float = 5.0,
-                       tol_m: float = 0.1) -> dict[str, np.ndarray]:
+                       tol_m: float = 0.25, grow: float = 0.1, warm: int = 16) -> dict[str, np.ndarray]:
     """Available 3D sight distance at the stations, both directions of travel.
 
     Parameters
@@ -533,8 +646,8 @@ def sight_3d_both_ways(path: LanePath, grid: ObstructionGrid, rules, lane_width_
         ``"right"`` or ``"left"``-hand traffic.
     eyes : ndarray of int, optional
         Stations to compute (default: all).
-    step_m, tol_m : float
-        See :func:`sight_one_way` (m).
+    step_m, tol_m, grow, warm
+        See :func:`sight_one_way` (m; ``grow`` a fraction, ``warm`` a count).
 
     Returns
     -------
@@ -548,12 +661,78 @@ def sight_3d_both_ways(path: LanePath, grid: ObstructionGrid, rules, lane_width_
     AASHTO Green Book 2018, ch. 3 (see the module's notes).
     """
     sides = lane_sides(traffic_side)
+    res = _sight_ways(path, grid, rules, [(sides["fwd"], 1), (sides["back"], -1)], lane_width_m / 2.0, eyes,
+                      step_m, tol_m, grow, warm)
     out = {}
-    for name, sign in (("fwd", 1), ("back", -1)):
-        r = sight_one_way(path, grid, rules, sides[name], sign, lane_width_m / 2.0, eyes, step_m, tol_m)
+    for name, r in zip(("fwd", "back"), res):
         out[f"sight_3d_{name}_m"] = r["sight_m"]
         out[f"limit_3d_{name}"] = r["limit"]
         out[f"block_x_{name}"] = r["block_x"]
         out[f"block_y_{name}"] = r["block_y"]
         out[f"block_chainage_{name}_m"] = r["block_chainage_m"]
+    return out
+
+
+def sight_3d_road(chainage_m, x, y, road_z, window, rules, lane_width_m: float = 3.6, traffic_side: str = "right",
+                  carriageway_half_width_m: float = 3.5, object_min_height_m: float = 0.5, piece_m: float = 3000.0,
+                  step_m: float = 5.0, tol_m: float = 0.25) -> dict[str, np.ndarray]:
+    """Available 3D sight distance along a whole road, a piece of road at a time, each piece's
+    ground read once as one window.
+
+    Parameters
+    ----------
+    chainage_m, x, y : ndarray
+        Stations: chainage and centreline position (m, the ground's metric CRS).
+    road_z : callable or ndarray
+        Road surface (fitted alignment) elevation (m), see :class:`LanePath`.
+    window : callable
+        ``window(xmin, ymin, xmax, ymax)`` gives ``(dem, transform, surface)`` covering the box
+        (m; ``surface`` ``None`` without a surface model), or ``None`` off the ground data.
+    rules : SightRules
+        Eye and object heights and look-ahead (m).
+    lane_width_m, traffic_side, carriageway_half_width_m, object_min_height_m
+        See :func:`sight_3d_both_ways` and :func:`obstruction_grid` (m).
+    piece_m : float, default 3000.0
+        Stations computed per window (m of road).
+    step_m, tol_m : float
+        See :func:`sight_one_way` (m).
+
+    Returns
+    -------
+    dict of ndarray
+        The columns of :func:`sight_3d_both_ways`, one value per station (NaN where no window
+        could be read), and ``unknown_cells`` (nodata cells met, summed over the windows).
+    """
+    s = np.asarray(chainage_m, dtype=float)
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    n = len(s)
+    out = {}
+    for name in ("fwd", "back"):
+        out[f"sight_3d_{name}_m"] = np.full(n, np.nan)
+        out[f"limit_3d_{name}"] = np.full(n, END, dtype=np.int8)
+        out[f"block_x_{name}"] = np.full(n, np.nan)
+        out[f"block_y_{name}"] = np.full(n, np.nan)
+        out[f"block_chainage_{name}_m"] = np.full(n, np.nan)
+    zfun = road_z if callable(road_z) else (lambda q, zs=np.asarray(road_z, float): np.interp(q, s, zs, left=np.nan,
+                                                                                              right=np.nan))
+    reach = 1.15 * rules.lookahead_m + 2 * step_m
+    unknown = 0
+    for a in np.arange(s[0], s[-1] + 1e-9, piece_m):
+        eyes = np.flatnonzero((s >= a) & (s < a + piece_m))
+        if not len(eyes):
+            continue
+        sel = np.flatnonzero((s >= s[eyes[0]] - reach) & (s <= s[eyes[-1]] + reach))
+        pad = lane_width_m + carriageway_half_width_m + 5.0
+        got = window(x[sel].min() - pad, y[sel].min() - pad, x[sel].max() + pad, y[sel].max() + pad)
+        if got is None:
+            continue
+        dem, transform, surface = got
+        path = LanePath(s[sel], x[sel], y[sel], zfun)
+        grid = obstruction_grid(dem, transform, path, carriageway_half_width_m, surface, object_min_height_m)
+        unknown += grid.unknown
+        res = sight_3d_both_ways(path, grid, rules, lane_width_m, traffic_side, eyes - sel[0], step_m, tol_m)
+        for k, v in res.items():
+            out[k][eyes] = v
+    out["unknown_cells"] = np.asarray(unknown)
     return out
