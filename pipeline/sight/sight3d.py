@@ -11,7 +11,7 @@ checks). The road surface is the fitted vertical alignment, not the raw DEM unde
 The obstruction model (:func:`obstruction_grid`) is the DEM window on its own cells, in which
 
 - every cell the carriageway covers (``carriageway_half_width_m`` either side of the
-  centreline, rasterised at a quarter of a cell along and half a cell across) holds the
+  centreline, rasterised every half cell along and across) holds the
   fitted alignment's elevation at the chainage of the cell's centre, level across the road
   (crossfall and superelevation are not modelled): the road prism comes from the alignment,
   so DEM noise and vehicles or verges on the carriageway never block a line, while the
@@ -122,12 +122,16 @@ class ObstructionGrid:
         return np.where(inside, val, LOW)
 
     def kind_at(self, u, v) -> np.ndarray:
-        """Kind of the cell nearest to cell-centre coordinates (``TERRAIN`` off the grid)."""
+        """Kind of the highest of the four cells around cell-centre coordinates (the one that
+        raises the bilinear surface there; ``TERRAIN`` off the grid)."""
         R, C = self.z.shape
-        i = np.rint(v).astype(np.int64)
-        j = np.rint(u).astype(np.int64)
-        inside = (i >= 0) & (j >= 0) & (i < R) & (j < C)
-        return np.where(inside, self.kind[np.clip(i, 0, R - 1), np.clip(j, 0, C - 1)], TERRAIN).astype(np.int8)
+        i = np.clip(np.floor(v).astype(np.int64), 0, R - 2)
+        j = np.clip(np.floor(u).astype(np.int64), 0, C - 2)
+        ii = np.stack([i, i, i + 1, i + 1])
+        jj = np.stack([j, j + 1, j, j + 1])
+        top = np.argmax(self.z[ii, jj], axis=0)
+        r = np.arange(len(i))
+        return self.kind[ii[top, r], jj[top, r]].astype(np.int8)
 
 
 def _affine6(transform) -> tuple:
@@ -283,12 +287,13 @@ def _node_maxima(z: np.ndarray, F: int) -> np.ndarray:
 
 
 def _burn_carriageway(grid: ObstructionGrid, path: LanePath, half_width: float) -> None:
-    """Write the fitted alignment into every cell the carriageway covers: samples every quarter
-    cell along and at most half a cell across, each cell getting the alignment at the chainage
+    """Write the fitted alignment into every cell the carriageway covers: samples every half
+    cell along and at most half a cell across (every cell whose centre lies on the carriageway
+    is hit), each cell getting the alignment at the chainage
     of its own centre (the sample's chainage moved along the tangent)."""
     cell = grid.cell_m
     s0, s1 = path.s[0], path.s[-1]
-    sf = np.arange(s0, s1 + 1e-9, cell / 4.0)
+    sf = np.arange(s0, s1 + 1e-9, cell / 2.0)
     off = np.linspace(-half_width, half_width, max(int(np.ceil(2 * half_width / (cell / 2.0))), 1) + 1)
     cx = np.interp(sf, path.s, path.x)
     cy = np.interp(sf, path.s, path.y)
@@ -382,7 +387,7 @@ def visible(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> np.ndarray:
 
 
 def highest_point(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> tuple[np.ndarray, ...]:
-    """The point of the obstruction standing highest above each line (sampled every half cell).
+    """The point of the obstruction standing highest above each line (sampled every cell).
 
     Parameters
     ----------
@@ -402,7 +407,7 @@ def highest_point(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> tuple[np.nda
     z0 = np.asarray(z0, dtype=float)
     z1 = np.asarray(z1, dtype=float)
     du, dv, dz = u1 - u0, v1 - v0, z1 - z0
-    n = np.maximum(np.ceil(2 * np.hypot(du, dv)), 1).astype(np.int64)
+    n = np.maximum(np.ceil(np.hypot(du, dv)), 1).astype(np.int64)
     line, k = _pieces(n)
     t = (k + 0.5) / n[line]
     u, v = u0[line] + t * du[line], v0[line] + t * dv[line]
@@ -489,7 +494,7 @@ class _Search:
 
 def sight_one_way(path: LanePath, grid: ObstructionGrid, rules, lane_side: int, direction: int,
                   lane_offset_m: float, eyes: np.ndarray | None = None, step_m: float = 5.0,
-                  tol_m: float = 0.25, grow: float = 0.1, warm: int = 16) -> dict[str, np.ndarray]:
+                  tol_m: float = 0.25, grow: float = 0.2, warm: int = 1) -> dict[str, np.ndarray]:
     """Available 3D sight distance from the stations, in one direction of travel.
 
     Parameters
@@ -513,10 +518,10 @@ def sight_one_way(path: LanePath, grid: ObstructionGrid, rules, lane_side: int, 
         Spacing of the first objects tried outward from each eye (m).
     tol_m : float, default 0.25
         Width the bracket of the first loss of sight is narrowed to (m).
-    grow : float, default 0.1
+    grow : float, default 0.2
         Beyond ``step_m / grow`` the objects tried are this fraction of their distance apart (a
         hidden stretch shorter than that spacing between two visible objects may be missed).
-    warm : int, default 16
+    warm : int, default 1
         One eye in ``warm`` is searched from the eye itself; the next ones from where the eye
         before them (one station back) lost sight, less the distance between them, after
         checking that that object is in view (1: every eye from itself).
@@ -629,7 +634,7 @@ def _sight_ways(path: LanePath, grid: ObstructionGrid, rules, ways: list[tuple[i
 
 def sight_3d_both_ways(path: LanePath, grid: ObstructionGrid, rules, lane_width_m: float = 3.6,
                        traffic_side: str = "right", eyes: np.ndarray | None = None, step_m: float = 5.0,
-                       tol_m: float = 0.25, grow: float = 0.1, warm: int = 16) -> dict[str, np.ndarray]:
+                       tol_m: float = 0.25, grow: float = 0.2, warm: int = 1) -> dict[str, np.ndarray]:
     """Available 3D sight distance at the stations, both directions of travel.
 
     Parameters
