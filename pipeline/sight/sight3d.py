@@ -108,12 +108,10 @@ class ObstructionGrid:
         i = np.floor(v).astype(np.int64)
         j = np.floor(u).astype(np.int64)
         inside = (i >= 0) & (j >= 0) & (i < R - 1) & (j < C - 1)
-        i = np.clip(i, 0, R - 2)
-        j = np.clip(j, 0, C - 2)
         fy = v - i
         fx = u - j
         flat = self.z.ravel()
-        k = i * C + j
+        k = np.where(inside, i * C + j, 0)
         z00 = flat[k]
         z01 = flat[k + 1]
         z10 = flat[k + C]
@@ -245,15 +243,15 @@ def obstruction_grid(dem: np.ndarray, transform, path: LanePath, carriageway_hal
     """
     t = _affine6(transform)
     cell = float(np.sqrt(abs(t[0] * t[4] - t[1] * t[3])))
-    z = np.array(dem, dtype=float)
+    z = np.array(dem, dtype=np.float32)
     unknown = ~np.isfinite(z)
     kind = np.full(z.shape, TERRAIN, dtype=np.int8)
     if surface is not None:
-        sfc = np.asarray(surface, dtype=float)
+        sfc = np.asarray(surface, dtype=np.float32)
         if sfc.shape != z.shape:
             raise ValueError("the surface model must lie on the DEM's cells")
         obj = np.isfinite(sfc) & (sfc >= np.where(unknown, np.inf, z) + object_min_height_m)
-        z = np.where(obj, sfc, z)
+        z = np.where(obj, sfc, z).astype(np.float32)
         kind[obj] = OBJECT
         unknown &= ~obj
     z[~np.isfinite(z)] = LOW
@@ -280,7 +278,7 @@ def _node_maxima(z: np.ndarray, F: int) -> np.ndarray:
     the four blocks around each node (cells ``F I - 2 F`` to ``F I + 2 F - 1``)."""
     R, C = z.shape
     Rb, Cb = -(-R // F), -(-C // F)
-    pad = np.full((Rb * F, Cb * F), LOW)
+    pad = np.full((Rb * F, Cb * F), LOW, dtype=z.dtype)
     pad[:R, :C] = z
     blocks = pad.reshape(Rb, F, Cb, F).max(axis=(1, 3))
     return maximum_filter(blocks, size=4, mode="nearest")
@@ -369,7 +367,7 @@ def visible(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> np.ndarray:
             J = np.rint((u0[line] + tm * du[line]) / Fl).astype(np.int64)
             Rc, Cc = zc.shape
             inside = (I >= 0) & (J >= 0) & (I < Rc) & (J < Cc)
-            bound = np.where(inside, zc[np.clip(I, 0, Rc - 1), np.clip(J, 0, Cc - 1)], LOW)
+            bound = np.where(inside, zc.ravel()[np.where(inside, I * Cc + J, 0)], LOW)
             zlow = z0[line] + np.minimum(k * dz[line], (k + 1) * dz[line]) / nl  # the line's lower end over the piece
             keep = bound > zlow
             line, k, nl = line[keep], k[keep], nl[keep]
