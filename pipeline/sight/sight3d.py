@@ -739,3 +739,107 @@ def sight_3d_road(chainage_m, x, y, road_z, window, rules, lane_width_m: float =
             out[k][eyes] = v
     out["unknown_cells"] = np.asarray(unknown)
     return out
+
+
+def clearance(path: LanePath, grid: ObstructionGrid, rules, eyes, required_m, lane_side: int, direction: int,
+              lane_offset_m: float, object_step_m: float = 1.0, batch: int = 16) -> dict:
+    """What to clear so that every eye of a stretch sees the required distance: the ground or
+    roadside objects standing above the sight lines it needs.
+
+    Parameters
+    ----------
+    path : LanePath
+        Centreline and road surface (fitted alignment).
+    grid : ObstructionGrid
+        The obstruction surface.
+    rules : SightRules
+        Eye and object heights (m).
+    eyes : ndarray of int
+        Stations of the stretch (indices into the path).
+    required_m : float or ndarray
+        Required sight distance (SSD) at each eye (m, along the lane).
+    lane_side, direction, lane_offset_m
+        The lane and direction of travel (see :func:`sight_one_way`).
+    object_step_m : float, default 1.0
+        Spacing of the object positions each eye must see, up to the required distance (m).
+    batch : int, default 16
+        Eyes handled at once (bounds memory).
+
+    Returns
+    -------
+    dict
+        ``cut_m`` (per cell of the grid, the height by which it stands above the lowest required
+        line passing over it, m; 0 elsewhere and on the carriageway), ``area_m2`` (plan area of
+        the cells to clear, m²), ``object_area_m2`` (of them, roadside objects, m²),
+        ``volume_m3`` (ground to cut: the terrain cells' heights above the lowest line times the
+        cell area, m³), ``max_cut_m`` (m) and ``polygon`` (the cells to clear as one shapely
+        geometry in the grid's CRS, ``None`` where nothing stands in the way).
+
+    Notes
+    -----
+    The envelope is every straight line from each eye (``eye_height_m`` above the lane) to every
+    object position (``object_height_m`` above the lane) up to the required distance, sampled
+    every half cell; a cell is to be cleared where its own height stands above the lowest of
+    those lines over it (the lines of every eye of the stretch, so that each sees its
+    required distance with nothing else changed). Objects are cleared, not cut: their cells
+    count in the area, not in the volume (the ground under them is not known from the
+    surface model). Common practice, no source: clearing the sight triangle / sight line
+    envelope on the inside of curves (AASHTO Green Book 2018, ch. 3, horizontal sight line
+    offset).
+    """
+    eyes = np.atleast_1d(np.asarray(eyes, dtype=np.int64))
+    req = np.broadcast_to(np.asarray(required_m, dtype=float), eyes.shape)
+    W = _Ways(path, [(lane_side, lane_offset_m)])
+    n = len(path.s)
+    R, C = grid.z.shape
+    lowest = np.full(R * C, np.inf)
+    ze = path.z(path.s[eyes]) + rules.eye_height_m
+    for b0 in range(0, len(eyes), batch):
+        e = eyes[b0:b0 + batch]
+        z0 = ze[b0:b0 + batch]
+        r = req[b0:b0 + batch]
+        room = (W.A[n - 1] - W.A[e]) if direction > 0 else W.A[e]
+        reach = np.minimum(r, room)
+        k = np.maximum(np.floor(reach / object_step_m).astype(np.int64), 0)
+        ok = np.isfinite(z0) & (k > 0)
+        if not ok.any():
+            continue
+        le, lo = _pieces(np.where(ok, k, 0))
+        d = (lo + 1) * object_step_m
+        x1, y1, _, zr = W.at(W.A[e][le], d, np.full(len(le), float(direction)))
+        u0, v0 = grid.pixel(W.lx[e][le], W.ly[e][le])
+        u1, v1 = grid.pixel(x1, y1)
+        za, zb = z0[le], zr + rules.object_height_m
+        m = np.maximum(np.ceil(2 * np.hypot(u1 - u0, v1 - v0)), 1).astype(np.int64)
+        ln, j = _pieces(m)
+        t = (j + 0.5) / m[ln]
+        i_ = np.rint(v0[ln] + t * (v1 - v0)[ln]).astype(np.int64)
+        j_ = np.rint(u0[ln] + t * (u1 - u0)[ln]).astype(np.int64)
+        inside = (i_ >= 0) & (j_ >= 0) & (i_ < R) & (j_ < C)
+        cell = (i_ * C + j_)[inside]
+        zl = (za[ln] + t * (zb - za)[ln])[inside]
+        np.minimum.at(lowest, cell, zl)
+    zflat = grid.z.ravel().astype(float)
+    kflat = grid.kind.ravel()
+    cut = np.where(np.isfinite(lowest) & (kflat != CREST), zflat - lowest, 0.0)
+    cut = np.maximum(cut, 0.0).reshape(R, C)
+    a = grid.cell_m ** 2
+    hit = cut > 0
+    kind = grid.kind
+    out = {"cut_m": cut, "area_m2": float(hit.sum() * a), "object_area_m2": float((hit & (kind == OBJECT)).sum() * a),
+           "volume_m3": float(cut[hit & (kind == TERRAIN)].sum() * a),
+           "max_cut_m": float(cut.max()) if hit.any() else 0.0, "polygon": None}
+    if hit.any():
+        out["polygon"] = _cells_polygon(hit, grid.transform)
+    return out
+
+
+def _cells_polygon(mask: np.ndarray, transform: tuple):
+    """The cells of ``mask`` as one shapely geometry (their outlines merged)."""
+    import shapely
+    from affine import Affine
+    from rasterio.features import shapes
+    from shapely.geometry import shape
+
+    geoms = [shape(g) for g, v in shapes(mask.astype(np.uint8), mask=mask, transform=Affine(*transform)) if v]
+    return shapely.union_all(geoms) if geoms else None
