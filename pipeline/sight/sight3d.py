@@ -843,3 +843,43 @@ def _cells_polygon(mask: np.ndarray, transform: tuple):
 
     geoms = [shape(g) for g, v in shapes(mask.astype(np.uint8), mask=mask, transform=Affine(*transform)) if v]
     return shapely.union_all(geoms) if geoms else None
+
+
+def clearance_road(chainage_m, x, y, road_z, window, rules, eyes, required_m, direction: int,
+                   lane_width_m: float = 3.6, traffic_side: str = "right", carriageway_half_width_m: float = 3.5,
+                   object_min_height_m: float = 0.5) -> dict | None:
+    """:func:`clearance` for one stretch of a road, its ground read as one window.
+
+    Parameters
+    ----------
+    chainage_m, x, y, road_z, window, rules, lane_width_m, traffic_side, carriageway_half_width_m,
+    object_min_height_m
+        As for :func:`sight_3d_road`.
+    eyes : ndarray of int
+        The stretch's stations (indices).
+    required_m : ndarray
+        Required sight distance at each of them (m).
+    direction : int
+        +1 with the chainage, -1 against it.
+
+    Returns
+    -------
+    dict or None
+        What :func:`clearance` gives (``cut_m`` dropped); ``None`` where no window could be read.
+    """
+    s = np.asarray(chainage_m, dtype=float)
+    eyes = np.asarray(eyes, dtype=np.int64)
+    req = np.asarray(required_m, dtype=float)
+    reach = 1.15 * float(np.nanmax(req)) + 20.0
+    sel = np.flatnonzero((s >= s[eyes].min() - reach) & (s <= s[eyes].max() + reach))
+    pad = lane_width_m + carriageway_half_width_m + 5.0
+    got = window(x[sel].min() - pad, y[sel].min() - pad, x[sel].max() + pad, y[sel].max() + pad)
+    if got is None:
+        return None
+    dem, transform, surface = got
+    path = LanePath(s[sel], x[sel], y[sel], road_z)
+    grid = obstruction_grid(dem, transform, path, carriageway_half_width_m, surface, object_min_height_m)
+    side = lane_sides(traffic_side)["fwd" if direction > 0 else "back"]
+    out = clearance(path, grid, rules, eyes - sel[0], req, side, direction, lane_width_m / 2.0)
+    out.pop("cut_m")
+    return out
