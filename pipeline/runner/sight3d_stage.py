@@ -148,10 +148,13 @@ def required_ssd(profile: pd.DataFrame, cset, cfg: Config, name: str) -> np.ndar
     grade = None
     if cfg["criteria.grade_adjusted"]:
         grade = (1 if name == "fwd" else -1) * profile["grade_pct"].to_numpy(float) / 100.0
-    ok = np.isfinite(v)
+    ok = np.isfinite(v) & (np.isfinite(grade) if grade is not None else True)
     out = np.full(len(v), np.nan)
-    if ok.any():
-        out[ok] = np.asarray(cset.ssd_design(v[ok], None if grade is None else grade[ok]), dtype=float) * cset.length_to_m
+    if ok.any():  # once per distinct speed (and grade): the set's look-up is not vectorised
+        key = np.column_stack([v[ok], grade[ok] if grade is not None else np.zeros(ok.sum())])
+        uniq, inv = np.unique(key, axis=0, return_inverse=True)
+        ssd = np.asarray(cset.ssd_design(uniq[:, 0], uniq[:, 1] if grade is not None else None), dtype=float)
+        out[ok] = ssd[inv.ravel()] * cset.length_to_m
     return out
 
 
