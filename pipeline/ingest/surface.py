@@ -73,3 +73,21 @@ def surface_on_cells(surface: DemGround, shape: tuple[int, int], transform) -> n
     out = np.full(x.shape, np.nan)
     out[inside] = arr[r[inside], c[inside]]
     return out.reshape(shape)
+
+
+def check_sight_settings(cfg: Config) -> None:
+    """Stop a run at once on 3D sight settings it cannot use.
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's settings (``sight.traffic_side``, ``sight.surface``).
+
+    Raises
+    ------
+    InputError
+        A traffic side other than 'right' or 'left', or a surface model that cannot be read.
+    """
+    if cfg["sight.traffic_side"] not in ("right", "left"):
+        raise InputError(f"sight.traffic_side is {cfg['sight.traffic_side']!r}; set it to 'right' or 'left'")
+    open_surface(cfg)
