@@ -292,3 +292,43 @@ def test_clearance_in_a_cut_matches_a_hand_integral():
     area_hand = width * span * (Rl - np.mean(o[c > 0]))
     assert vol_cells == pytest.approx(vol_hand, rel=0.10)
     assert area_cells == pytest.approx(area_hand, rel=0.10)
+
+
+# --------------------------------------------------------------------------- the whole run
+def test_demo_shows_the_cut_bank_as_a_roadside_deficiency(demo_out):
+    """The demo's cut bank on the inside of Brindle Hill Lane's 200 m curve (invented sample
+    data, data_samples/make_samples.py): the drivers travelling back round the bend lose sight
+    of the road to the bank, not to the crest before it; the inventory carries a roadside row
+    with the horizontal curve, the area and volume to clear, and audit.gpkg the two layers.
+    The check of the sight against the bank: AASHTO's sight line offset (from memory), with M
+    from the inside lane's centre (1.8 m off the centreline) to where a 1:1 bank from 10 m
+    reaches 0.84 m, give or take the 5 m cells' ramp."""
+    import geopandas as gpd
+    import pandas as pd
+
+    d = pd.read_csv(demo_out / "deficiencies.csv")
+    road = d[d["kind"] == "roadside"]
+    assert len(road) >= 1
+    row = road[(road["road_id"] == "WV-02") & (road["direction"] == "decreasing")].iloc[0]
+    assert row["limit_kind"] == "roadside terrain" and row["hcurve_no"] == 1
+    assert row["clear_area_m2"] > 0 and row["clear_volume_m3"] > 0
+    assert row["sight_available_m"] < row["ssd_required_m"]
+    lo = _hso_sight(200.0 - 1.8, 10.0 + 0.84 - 5.0 - 1.8)
+    hi = _hso_sight(200.0 - 1.8, 10.0 + 0.84 + 5.0 - 1.8)
+    assert lo <= row["sight_available_m"] <= hi
+    h = pd.read_csv(demo_out / "horizontal_curves.csv")
+    assert h.loc[(h["road_id"] == "WV-02") & (h["hcurve_no"] == 1), "sight_3d_min_m"].iloc[0] < 130.0
+    p = pd.read_parquet(demo_out / "profiles.parquet")
+    assert {"sight_3d_fwd_m", "sight_3d_fwd_limit", "sight_3d_back_m", "sight_3d_back_limit"} <= set(p.columns)
+    clear = gpd.read_file(demo_out / "audit.gpkg", layer="sight_clearance")
+    pts = gpd.read_file(demo_out / "audit.gpkg", layer="sight_blocking_points")
+    assert len(clear) >= 1 and len(pts) >= 1
+    # the outline holds the area to clear (shapely's area of the cells' union, in the roads' CRS)
+    c = clear[(clear["road_id"] == "WV-02") & (clear["direction"] == "decreasing")].iloc[0]
+    assert c.geometry.area == pytest.approx(c["clear_area_m2"], rel=1e-6)
+    assert int(c["rank"]) == int(row["rank"])
+    # the blocking points lie on the inside of the curve, beyond the carriageway edge
+    roads = gpd.read_file(demo_out / "audit.gpkg", layer="roads")
+    line = roads.loc[roads["road_id"] == "WV-02"].geometry.iloc[0]
+    wv02 = pts[pts["road_id"] == "WV-02"]
+    assert (wv02.geometry.distance(line) > 3.5).all()
