@@ -22,6 +22,7 @@ import pandas as pd
 
 from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
+from .sight_figure import roadside_section
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, network_map, png_data_uri, road_figure
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS
 
@@ -51,7 +52,7 @@ def curve_anchor(road_id, curve_no) -> str:
 
 TOC = (("summary", "Network summary"), ("data-quality", "What this ground data can support"),
        ("map", "Network overview"), ("inventory", "Ranked inventory"), ("curves", "Deficient curves"),
-       ("method", "Method and criteria"), ("notes", "Data notes and skipped roads"), ("cautions", "Cautions"))
+       ("roadside", "Roadside sight (3D)"), ("method", "Method and criteria"), ("notes", "Data notes and skipped roads"), ("cautions", "Cautions"))
 
 
 def _toc() -> str:
@@ -200,6 +201,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
     parts += _inventory_section(result.evaluation.inventory, units, paged)
     parts += _curve_section(pages, pngs, units)
+    parts += roadside_section(result, units, cfg)
     parts += _method_section(method)
     parts += _notes_section(result, summary, units)
     parts += _cautions_section(caution)

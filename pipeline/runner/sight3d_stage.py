@@ -16,7 +16,7 @@ from ..core.config import Config
 from ..ingest.readers import DemGround, read_dem_window
 from ..ingest.surface import open_surface, surface_on_cells
 from ..profile.stations import run_lengths
-from ..sight.sight3d import LIMIT3D_NAMES, OBJECT, TERRAIN, clearance_road, sight_3d_road
+from ..sight.sight3d import LIMIT3D_NAMES, OBJECT, TERRAIN, clearance_road, lane_width, sight_3d_road
 
 PROFILE_COLUMNS = ["sight_3d_fwd_m", "sight_3d_fwd_limit", "sight_3d_back_m", "sight_3d_back_limit"]
 CLEARANCE_COLUMNS = ["road_id", "direction", "from_m", "to_m", "limit_kind", "hcurve_no", "ssd_required_m",
@@ -36,13 +36,6 @@ class Sight3DStage:
     hcurves: np.ndarray | None = None
     clearances: pd.DataFrame | None = None
     notes: list = field(default_factory=list)
-
-
-def lane_width(cfg: Config) -> float:
-    """The lane width of the 3D sight lines (m): ``sight.lane_width_m``, or ``plan.lane_width_m``
-    where that is 0."""
-    w = float(cfg["sight.lane_width_m"])
-    return w if w > 0 else float(cfg["plan.lane_width_m"])
 
 
 def _empty(n: int) -> dict:

@@ -190,6 +190,24 @@ class LanePath:
         return lx, ly, A
 
 
+def lane_width(cfg) -> float:
+    """The lane width of the 3D sight lines (m): ``sight.lane_width_m``, or ``plan.lane_width_m``
+    where that is 0 (one default for both the HSO check and the 3D sight lines).
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's settings.
+
+    Returns
+    -------
+    float
+        Lane width (m).
+    """
+    w = float(cfg["sight.lane_width_m"])
+    return w if w > 0 else float(cfg["plan.lane_width_m"])
+
+
 def lane_sides(traffic_side: str) -> dict[str, int]:
     """Which side of the centreline each direction's lane is on: +1 left, -1 right of the
     direction of increasing chainage.
