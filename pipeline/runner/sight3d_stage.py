@@ -39,8 +39,10 @@ class Sight3DStage:
 
 
 def _empty(n: int) -> dict:
-    return {"sight_3d_fwd_m": np.full(n, np.nan), "sight_3d_fwd_limit": np.full(n, None, dtype=object),
-            "sight_3d_back_m": np.full(n, np.nan), "sight_3d_back_limit": np.full(n, None, dtype=object)}
+    """The profile's 3D columns where the stage does not run: empty (text columns typed as text,
+    so that every chunk file reads alike)."""
+    return {"sight_3d_fwd_m": np.full(n, np.nan), "sight_3d_fwd_limit": pd.array([None] * n, dtype="string"),
+            "sight_3d_back_m": np.full(n, np.nan), "sight_3d_back_limit": pd.array([None] * n, dtype="string")}
 
 
 def road_sight_3d(row: pd.Series, profile: pd.DataFrame, curves: pd.DataFrame | None, hcurves: pd.DataFrame | None,
@@ -107,8 +109,8 @@ def road_sight_3d(row: pd.Series, profile: pd.DataFrame, curves: pd.DataFrame | 
     cols = {}
     for d in ("fwd", "back"):
         cols[f"sight_3d_{d}_m"] = res[f"sight_3d_{d}_m"]
-        cols[f"sight_3d_{d}_limit"] = np.where(np.isnan(res[f"sight_3d_{d}_m"]), None,
-                                               LIMIT3D_NAMES[res[f"limit_3d_{d}"]]).astype(object)
+        cols[f"sight_3d_{d}_limit"] = pd.array(np.where(np.isnan(res[f"sight_3d_{d}_m"]), None,
+                                                        LIMIT3D_NAMES[res[f"limit_3d_{d}"]]), dtype="string")
     notes = []
     if int(res["unknown_cells"]):
         notes.append(("3D sight lines over DEM cells without data", None, None,
