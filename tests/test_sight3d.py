@@ -332,3 +332,49 @@ def test_demo_shows_the_cut_bank_as_a_roadside_deficiency(demo_out):
     line = roads.loc[roads["road_id"] == "WV-02"].geometry.iloc[0]
     wv02 = pts[pts["road_id"] == "WV-02"]
     assert (wv02.geometry.distance(line) > 3.5).all()
+
+
+def test_a_surface_model_adds_trees_as_roadside_objects(tmp_path):
+    """A stand of trees given with --surface (sight.surface): the demo DEM with 15 m of canopy
+    from 8 to 30 m inside Brindle Hill Lane's 200 m curve (invented, test data only). The
+    trees, standing nearer the road than the demo's cut bank, become what limits the sight
+    there: a roadside-object row whose area to clear lies within the stand (rasterio and
+    shapely as the references for the stand's outline and area)."""
+    import geopandas as gpd
+    import pandas as pd
+    import rasterio
+    import shapely
+    from rasterio.features import geometry_mask
+    from shapely.ops import substring
+
+    from pipeline.cli import main
+    from pipeline.core.resources import sample_paths
+
+    paths = sample_paths()
+    line = gpd.read_file(paths["roads"], layer="roads").set_index("road_id").geometry["WV-02"]
+    line = shapely.line_merge(line) if line.geom_type != "LineString" else line
+    bend = substring(line, 1590.0, 1750.0)
+    stand = shapely.difference(bend.offset_curve(19.0).buffer(11.0, cap_style="flat"), line.buffer(8.0))
+    with rasterio.open(paths["dem"]) as src:
+        dem, prof = src.read(1), src.profile
+        inside = ~geometry_mask([stand], out_shape=dem.shape, transform=src.transform)
+    sfc = np.where(inside & (dem != prof["nodata"]), dem + 15.0, dem).astype("float32")
+    surface = tmp_path / "surface.tif"
+    with rasterio.open(surface, "w", **prof) as dst:
+        dst.write(sfc, 1)
+    out = tmp_path / "out"
+    assert main(["run", "--roads", str(paths["roads"]), "--ground", str(paths["dem"]), "--surface", str(surface),
+                 "--out", str(out), "--quiet"]) == 0
+    d = pd.read_csv(out / "deficiencies.csv")
+    obj = d[(d["kind"] == "roadside") & (d["road_id"] == "WV-02") & (d["limit_kind"] == "roadside object")]
+    assert len(obj) >= 1 and (obj["clear_area_m2"] > 0).all()
+    clear = gpd.read_file(out / "audit.gpkg", layer="sight_clearance")
+    mine = clear[(clear["road_id"] == "WV-02") & (clear["object_area_m2"] > 0)]
+    assert len(mine) >= 1
+    # the cells to clear of the stand lie within it (give or take a 5 m cell)
+    assert mine.geometry.iloc[0].intersection(stand.buffer(7.5)).area > 0.5 * mine["object_area_m2"].iloc[0]
+    # a surface model that is not a raster stops the run with exit code 2
+    bad = tmp_path / "surface.csv"
+    bad.write_text("x,y\n1,2\n")
+    assert main(["run", "--roads", str(paths["roads"]), "--ground", str(paths["dem"]), "--surface", str(bad),
+                 "--out", str(tmp_path / "bad"), "--quiet"]) == 2
