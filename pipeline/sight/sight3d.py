@@ -272,7 +272,7 @@ def obstruction_grid(dem: np.ndarray, transform, path: LanePath, carriageway_hal
         z = np.where(obj, sfc, z).astype(np.float32)
         kind[obj] = OBJECT
         unknown &= ~obj
-    z[~np.isfinite(z)] = LOW
+    z[unknown] = LOW
     grid = ObstructionGrid(z=z, kind=kind, transform=t, cell_m=cell, factor=1, levels=[], unknown=int(unknown.sum()))
     _burn_carriageway(grid, path, carriageway_half_width_m)
     F = max(int(round(coarse_m / cell)), 1)
@@ -295,10 +295,7 @@ def _node_maxima(z: np.ndarray, F: int) -> np.ndarray:
     within ``F + 1`` of the node along each axis: maxima of ``F`` x ``F`` blocks first, then of
     the four blocks around each node (cells ``F I - 2 F`` to ``F I + 2 F - 1``)."""
     R, C = z.shape
-    Rb, Cb = -(-R // F), -(-C // F)
-    pad = np.full((Rb * F, Cb * F), LOW, dtype=z.dtype)
-    pad[:R, :C] = z
-    blocks = pad.reshape(Rb, F, Cb, F).max(axis=(1, 3))
+    blocks = np.maximum.reduceat(np.maximum.reduceat(z, np.arange(0, R, F), axis=0), np.arange(0, C, F), axis=1)
     return maximum_filter(blocks, size=4, mode="nearest")
 
 
