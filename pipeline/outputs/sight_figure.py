@@ -109,7 +109,8 @@ def roadside_section(result, units, cfg) -> list[str]:
     result : NetworkResult
         The run's result (inventory, stations, clearances).
     units : OutputUnits
-        The run's output units (distances in the facts).
+        The run's output units (distances and speeds in the facts; areas and volumes stay in m²
+        and m³).
     cfg : Config
         The run's settings (lane width, traffic side).
 
@@ -133,8 +134,8 @@ def roadside_section(result, units, cfg) -> list[str]:
              "road ahead within the required stopping sight distance: the sight lines measured in 3D over the DEM "
              "from the centre of the lane. Each plan view shows the lines a driver needs (dashed), the sight "
              "available (solid), the area to clear and the points that block the view.</p>"]
-    L = units.length_label if hasattr(units, "length_label") else "m"
-    conv = (lambda v: v / units.divisor("x_m")) if hasattr(units, "divisor") else (lambda v: v)
+    L = units.length_label
+    conv = (lambda v: v / units.divisor("x_m"))  # noqa: E731
     for r in road.sort_values("rank").itertuples():
         row = pd.Series(r._asdict())
         mine = cl[(cl["road_id"] == r.road_id) & (cl["direction"] == r.direction)
@@ -145,7 +146,8 @@ def roadside_section(result, units, cfg) -> list[str]:
                  ("horizontal curve", str(int(r.hcurve_no)) if pd.notna(r.hcurve_no) and r.hcurve_no else "none"),
                  ("limited by", str(r.limit_kind)),
                  ("sight available / required", f"{conv(r.sight_available_m):.0f} / {conv(r.ssd_required_m):.0f} {L}"),
-                 ("speed the sight supports", f"{r.supported_speed_kmh:.0f} km/h"),
+                 ("speed the sight supports", f"{r.supported_speed_kmh / units.divisor('speed_kmh'):.0f} "
+                                              f"{units.speed_label}"),
                  ("area to clear", f"{r.clear_area_m2:.0f} m²" if pd.notna(r.clear_area_m2) else "-"),
                  ("ground to cut", f"{r.clear_volume_m3:.0f} m³" if pd.notna(r.clear_volume_m3) else "-"),
                  ("verdict", f"{r.verdict} ({r.confidence} confidence)"), ("first thought", str(r.treatment_hint))]

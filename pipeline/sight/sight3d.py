@@ -27,9 +27,11 @@ holding the highest point above the line: the carriageway ("crest"), the ground
 ("roadside terrain") or the surface model ("roadside object").
 
 Available sight distance (the first loss of sight, as in 2D): distances are measured along
-the lane's path. Objects are tried at ``step_m`` intervals outwards from the eye (the "ladder")
-up to the look-ahead or the end of the road; the first hidden one and the last visible one
-before it bracket the limit, which bisection narrows to ``tol_m``. Lines are tested
+the lane's path. Objects are tried outwards from the eye, every ``step_m`` and then at a
+spacing growing to ``grow`` times their distance (the "ladder"), up to the look-ahead or the
+end of the road; the first hidden one and the last visible one before it bracket the limit,
+which bisection narrows to ``tol_m``. A hidden stretch shorter than the ladder's spacing
+between two visible objects can be missed. Lines are tested
 coarse-to-fine: each line is cut into pieces about ``coarse_m`` long, each piece compared with
 the maximum of the obstruction over a block of cells wide enough to hold every cell any fine
 sample of the piece can touch (a conservative bound, so a piece cleared coarsely is clear);
