@@ -29,6 +29,7 @@ test: $(VENV)/.installed-test
 
 bench: $(VENV)/.installed
 	$(BIN)/python benchmarks/throughput.py --readme
+	$(BIN)/python benchmarks/sight3d_speed.py
 
 bench-accuracy: $(VENV)/.installed
 	$(BIN)/python benchmarks/alignment_accuracy.py

@@ -9,7 +9,8 @@ sharp for the road's speed. The ground model is then made from the design:
 - ``wendle_vale_dem.tif``: a corridor DEM (5 m cells, float32 metres, nodata
   farther than about 200 m from any road), road surface burned in, a little
   survey noise, a stream valley under the Coldwater Road bridge (a bare-earth
-  DEM shows the valley floor, not the deck) and a void on Juniper Gate Road;
+  DEM shows the valley floor, not the deck), a void on Juniper Gate Road and a
+  cut bank on the inside of Brindle Hill Lane's 200 m curve (for the 3D sight lines);
 - ``wendle_vale_roads.gpkg``: layer ``roads`` with ``road_id, name, speed_kmh,
   aadt, road_class`` (EPSG:32633; Fallowfield Road is stored in two parts, one
   digitised backwards; Hazelmoor Lane has no posted speed);
@@ -104,6 +105,10 @@ ROADS = [
 ]
 BRIDGE = dict(road_id="WV-03", chainage_m=5600.0, depth_m=6.0, width_m=40.0, name="Coldwater Brook bridge")
 VOID = dict(road_id="WV-10", chainage_m=1015.0, along_m=30.0, across_m=40.0)
+# a cut bank on the inside (left) of Brindle Hill Lane's 200 m curve: 1:1 from 10 m off the centreline,
+# up to 6 m high, tapered over 25 m at each end (the 3D sight lines find it)
+CUT = dict(road_id="WV-02", from_m=1590.0, to_m=1750.0, taper_m=25.0, toe_m=10.0, slope=1.0, height_m=6.0,
+           side="left")
 # private accesses: (road, chainage, side offset m, name)
 ACCESSES = [("WV-09", 1320.0, 9.0, "Ivywell Farm access"), ("WV-06", 2400.0, -8.0, "Fallow Wood forestry gate"),
             ("WV-03", 800.0, 10.0, "Coldwater Mill entrance")]
@@ -192,6 +197,18 @@ def build(out_dir: Path = HERE) -> dict:
     fade = np.clip((d - 7.0) / 45.0, 0.0, 1.0) ** 2 * (3 - 2 * np.clip((d - 7.0) / 45.0, 0.0, 1.0))
     dem[near] = zr + fade * field
     dem[near] += rng.normal(0.0, 0.03, near.sum())  # survey noise
+    # a cut bank on the inside of a horizontal curve (hides the road ahead round the bend)
+    k_cut = ids.index(CUT["road_id"])
+    on = np.flatnonzero(near)[dense[idx[near], 4] == k_cut]
+    j = idx[on]
+    nxt = np.minimum(j + 1, len(dense) - 1)
+    tx, ty = dense[nxt, 0] - dense[j, 0], dense[nxt, 1] - dense[j, 1]
+    left = tx * (gy.ravel()[on] - dense[j, 1]) - ty * (gx.ravel()[on] - dense[j, 0]) > 0
+    ch_cut = dense[j, 2]
+    along = np.clip(np.minimum(ch_cut - CUT["from_m"], CUT["to_m"] - ch_cut) / CUT["taper_m"], 0.0, 1.0)
+    rise = np.clip((dist[on] - CUT["toe_m"]) * CUT["slope"], 0.0, CUT["height_m"]) * along
+    inside = left if CUT["side"] == "left" else ~left
+    dem[on] = np.where(inside & (rise > 0), np.maximum(dem[on], dense[j, 3] + rise), dem[on])
     dem = dem.reshape(nrow, ncol).astype(np.float32)
     # a void (nodata patch) on Juniper Gate Road
     vl = lines[VOID["road_id"]]
@@ -269,7 +286,7 @@ def build(out_dir: Path = HERE) -> dict:
 
     (out_dir / "wendle_vale_design.json").write_text(json.dumps({
         "scenario": "Wendle Vale District (invented)", "crs": CRS, "roads": design,
-        "bridge": BRIDGE, "void": VOID,
+        "bridge": BRIDGE, "void": VOID, "cut": CUT,
     }, indent=1))
     return {"dem": dem_path, "roads": roads_path, "cells": (nrow, ncol)}
 

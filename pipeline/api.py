@@ -27,6 +27,7 @@ import geopandas as gpd
 import pandas as pd
 
 from .core.config import Config, Settings, load_config
+from .ingest.surface import check_sight_settings
 from .outputs.export import staging_folder, write_outputs, write_run_json
 from .runner.checks import check_inputs
 from .runner.network import Progress, run_network, run_summary, worker_pool
@@ -188,6 +189,7 @@ def audit(roads, ground, settings=None, *, progress: Progress | None = None, wor
         An input that cannot be read or contradicts the settings (one line saying what to fix).
     """
     cfg = _config(settings)
+    check_sight_settings(cfg)
     started = datetime.now(timezone.utc)
     temp = Path(tempfile.mkdtemp(prefix="sightaudit-inputs-"))
     roads_path, roads_mem = _as_path(roads, temp, "roads")

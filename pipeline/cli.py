@@ -42,6 +42,7 @@ RUN_FLAGS = [
     ("--criteria", "criteria.set", str, "NAME", "criteria set to judge against [aashto-2018-metric]"),
     ("--structures", "structures.file", str, "PATH", "known bridges and culverts to mask (points or lines)"),
     ("--junctions", "junctions.file", str, "PATH", "junctions and accesses to look for beyond crests (points)"),
+    ("--surface", "sight.surface", str, "PATH", "surface model with trees and buildings (raster) for the 3D sight lines"),
     ("--speed-source", "speed.source", str, "SOURCE", "attribute (speed column) or predicted (FHWA-RD-99-171)"),
     ("--units", "output.units", str, "SYSTEM", "metric (m, km/h) or us (ft, mph): speeds read, results written"),
     ("--workers", "run.workers", int, "N", "processes for the per-road stages [every core]"),

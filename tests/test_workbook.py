@@ -129,7 +129,7 @@ def test_summary_sheet_for_a_memo(demo_out):
     assert f"{n} deficient stretch" in brief and " km in all" in brief and "undetermined" in brief
     top = defs.sort_values("rank").iloc[0]
     first = [r[1] for r in rows if r and r[0] == "Worst site, rank 1"][0]
-    assert first.startswith(f"{top['road_id']} {top['road_name']}, curve {top['curve_no']}")
+    assert first.startswith(f"{top['road_id']} {top['road_name']}, curve {int(top['curve_no'])}")
     assert len([r for r in rows if r and str(r[0]).startswith("Worst site")]) == 5
     assert brief.endswith(" The five worst sites, in the order to treat them:")
     assert sum(1 for r in rows if r and r[0] == "Caution" and "licensed engineer" in r[1]) == 2

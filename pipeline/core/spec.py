@@ -120,6 +120,16 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
         "fine_step_m": (2.0, "spacing of the road samples a sight line is checked against (m)"),
         "ground_diagnostic": (True, "also measure the line of sight on the raw ground profile, at the station "
                                     "step (diagnostic columns)"),
+        "three_d": (True, "on a DEM, also measure sight lines in 3D over the ground beside the road (cuts, banks, "
+                          "and trees where a surface model is given)"),
+        "lane_width_m": (0.0, "lane width for the 3D sight lines: the driver's eye and the object are half of it "
+                              "from the centreline; 0 = plan.lane_width_m (m)"),
+        "traffic_side": ("right", "which side of the road traffic keeps to: 'right' or 'left' (the lane the 3D "
+                                  "sight lines start and end in)"),
+        "surface": ("", "a surface model (raster with trees and buildings, same heights as the DEM) whose "
+                        "objects block the 3D sight lines; empty = bare ground only"),
+        "object_min_height_m": (0.5, "the surface model counts as a roadside object where it stands this much above "
+                                     "the DEM (m)"),
     },
     "confidence": {
         "p_verdict": (0.9, "a curve is judged deficient only where the probability that its sight distance is "

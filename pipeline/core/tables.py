@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-_UNITS = (("_pct", "%"), ("_kmh", "km/h"), ("_deg", "degrees"), ("_m", "m"))
+_UNITS = (("_pct", "%"), ("_kmh", "km/h"), ("_deg", "degrees"), ("_m2", "m²"), ("_m3", "m³"), ("_m", "m"))
 _DTYPES = {"str": object, "float": "float64", "int": "int64", "bool": "bool"}
 
 
@@ -65,6 +65,10 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('v85_back_kmh', 'float', 'predicted 85th-percentile speed, decreasing chainage (km/h)'),
         Column('speed_fwd_kmh', 'float', 'speed judged at, increasing chainage (km/h)'),
         Column('speed_back_kmh', 'float', 'speed judged at, decreasing chainage (km/h)'),
+        Column('sight_3d_fwd_m', 'float', 'available sight distance along the lane over the DEM in 3D, increasing chainage (m; empty where the ground is not a DEM)'),
+        Column('sight_3d_fwd_limit', 'str', 'what limits the 3D sight, increasing chainage: crest, roadside terrain, roadside object, look-ahead or end of road'),
+        Column('sight_3d_back_m', 'float', 'available sight distance along the lane over the DEM in 3D, decreasing chainage (m)'),
+        Column('sight_3d_back_limit', 'str', 'what limits the 3D sight, decreasing chainage'),
     ),
     "work.curves": (
         Column('road_id', 'str', 'road identifier from the roads file'),
@@ -96,6 +100,7 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('ground_spacing_m', 'float', "the ground data's own spacing on the road: DEM cell size or median ground-point spacing (m)"),
         Column('sight_sd_m', 'float', "standard deviation of the sight distance over the curve, from the fit's covariance (m)"),
         Column('sight_formula_m', 'float', 'sight distance from the closed-form AASHTO expression for this A and L (m)'),
+        Column('sight_3d_min_m', 'float', 'shortest 3D sight distance over the DEM at the stations on the curve, either direction (m; empty where the ground is not a DEM)'),
     ),
     "work.keypoints": (
         Column('road_id', 'str', 'road identifier from the roads file'),
@@ -134,6 +139,23 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('hso_m', 'float', "lateral clearance from the inside lane's centre needed for the required SSD (m), to verify in the field"),
         Column('hso_valid', 'bool', 'false where the required SSD is longer than the curve (the HSO formula then overstates)'),
         Column('v85_kmh', 'float', 'predicted 85th-percentile car speed on the curve (FHWA-RD-99-171) (km/h)'),
+        Column('sight_3d_min_m', 'float', 'shortest 3D sight distance over the DEM at the stations on the curve, either direction (m; empty where the ground is not a DEM)'),
+    ),
+    "work.clearances": (
+        Column('road_id', 'str', 'road identifier from the roads file'),
+        Column('direction', 'str', 'direction of travel: increasing or decreasing chainage'),
+        Column('from_m', 'float', 'start of the stretch whose 3D sight falls short while its 2D sight does not (m)'),
+        Column('to_m', 'float', 'end of that stretch (m)'),
+        Column('limit_kind', 'str', 'roadside terrain or roadside object (the surface model)'),
+        Column('hcurve_no', 'int', 'the horizontal curve the required sight lines cross most (0 = none)'),
+        Column('ssd_required_m', 'float', 'largest required SSD over the stretch (m)'),
+        Column('sight_3d_m', 'float', 'shortest 3D sight over the stretch (m)'),
+        Column('clear_area_m2', 'float', 'plan area of ground or objects standing above the required sight lines (m²)'),
+        Column('object_area_m2', 'float', 'of that area, roadside objects of the surface model (m²)'),
+        Column('clear_volume_m3', 'float', 'ground to cut so that the required sight lines clear it (m³)'),
+        Column('max_cut_m', 'float', 'deepest cut or clearing needed (m)'),
+        Column('clearance_wkt', 'str', 'outline of the area to clear, WKT in the roads CRS'),
+        Column('blocking_wkt', 'str', 'the points blocking the first hidden sight line of each station, WKT multipoint in the roads CRS'),
     ),
     "work.notes": (
         Column('road_id', 'str', 'road identifier from the roads file'),
@@ -191,12 +213,13 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('resolution_m', 'float', 'shortest feature the ground data resolve along the road (m)'),
         Column('fit_confidence', 'str', 'how well the curve fits the ground data alone: high, medium or low (see flags)'),
         Column('flags', 'str', "why the fit's confidence is not high"),
+        Column('sight_3d_min_m', 'float', 'shortest 3D sight distance over the DEM at the stations on the curve, either direction (m; empty where the ground is not a DEM)'),
     ),
     "deficiencies": (
         Column('rank', 'int', '1 = first to fix'),
         Column('road_id', 'str', 'road identifier from the roads file'),
         Column('curve_no', 'int', 'vertical curve number along the road, from its first vertex'),
-        Column('kind', 'str', 'crest (grade decreases) or sag (grade increases)'),
+        Column('kind', 'str', 'crest (grade decreases) or sag (grade increases); roadside where the ground or objects beside the road limit the 3D sight'),
         Column('direction', 'str', 'direction of travel: increasing or decreasing chainage'),
         Column('from_m', 'float', 'start of the deficient stretch: driver positions lacking SSD (m)'),
         Column('to_m', 'float', 'end of the deficient stretch (m)'),
@@ -228,10 +251,13 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('p_deficient', 'float', 'probability that the sight distance over the curve is below the required SSD, from its standard deviation (0-1)'),
         Column('confidence', 'str', "high: the verdict's probability is beyond the high threshold, the fit clean and the grade change clear; medium: decided but less sure; low: undetermined, or the fit is poor"),
         Column('to_settle', 'str', 'what would settle an undetermined verdict'),
-        Column('limit_kind', 'str', 'what limits sight: line of sight (crest) or headlight (sag)'),
+        Column('limit_kind', 'str', 'what limits sight: line of sight (crest), headlight (sag), or for roadside rows roadside terrain or roadside object (3D sight lines)'),
         Column('f_shortfall', 'float', 'priority factor: shortfall / required SSD (0-1)'),
         Column('f_speed', 'float', 'priority factor: speed gap / 50 km/h (0-1)'),
         Column('f_exposure', 'float', 'priority factor: ln(1 + AADT) / ln(1 + reference AADT) (0-1)'),
+        Column('hcurve_no', 'int', 'roadside rows: the horizontal curve the required sight lines cross'),
+        Column('clear_area_m2', 'float', 'roadside rows: plan area of ground or objects standing above the required sight lines, to clear (m²)'),
+        Column('clear_volume_m3', 'float', 'roadside rows: ground to cut so that the required sight lines clear it (m³)'),
     ),
     "roads": (
         Column('road_id', 'str', 'road identifier from the roads file'),
@@ -263,6 +289,7 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('hso_m', 'float', "lateral clearance from the inside lane's centre needed for the required SSD (m), to verify in the field"),
         Column('hso_valid', 'bool', 'false where the required SSD is longer than the curve (the HSO formula then overstates)'),
         Column('v85_kmh', 'float', 'predicted 85th-percentile car speed on the curve (FHWA-RD-99-171) (km/h)'),
+        Column('sight_3d_min_m', 'float', 'shortest 3D sight distance over the DEM at the stations on the curve, either direction (m; empty where the ground is not a DEM)'),
     ),
     "data_notes": (
         Column('road_id', 'str', 'road identifier from the roads file'),
@@ -296,6 +323,10 @@ TABLES: dict[str, tuple[Column, ...]] = {
         Column('v85_back_kmh', 'float', 'predicted 85th-percentile speed, decreasing chainage (km/h)'),
         Column('speed_fwd_kmh', 'float', 'speed judged at, increasing chainage (km/h)'),
         Column('speed_back_kmh', 'float', 'speed judged at, decreasing chainage (km/h)'),
+        Column('sight_3d_fwd_m', 'float', 'available sight distance along the lane over the DEM in 3D, increasing chainage (m; empty where the ground is not a DEM)'),
+        Column('sight_3d_fwd_limit', 'str', 'what limits the 3D sight, increasing chainage: crest, roadside terrain, roadside object, look-ahead or end of road'),
+        Column('sight_3d_back_m', 'float', 'available sight distance along the lane over the DEM in 3D, decreasing chainage (m)'),
+        Column('sight_3d_back_limit', 'str', 'what limits the 3D sight, decreasing chainage'),
     ),
 }
 

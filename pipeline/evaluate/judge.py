@@ -1,7 +1,7 @@
 """Judge curves and stations against a criteria set, and build the ranked inventory.
 
 The rules live in SQL (``sql/criteria_macros.sql``, ``sql/evaluate.sql``,
-``sql/inventory.sql``, ``sql/summary.sql``), run by an in-process DuckDB over the
+``sql/inventory.sql``, ``sql/roadside.sql``, ``sql/summary.sql``), run by an in-process DuckDB over the
 per-road results; this module only assembles the input tables and returns the
 results as DataFrames.
 """
@@ -75,7 +75,7 @@ def params_table(cfg: Config) -> pd.DataFrame:
 
 
 def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, hazards: pd.DataFrame,
-             cset: CriteriaSet, cfg: Config) -> Evaluation:
+             cset: CriteriaSet, cfg: Config, hcurves=None, clearances=None) -> Evaluation:
     """Run the SQL rules over the per-road results.
 
     Parameters
@@ -89,6 +89,9 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
         The criteria set judged against.
     cfg : Config
         Run settings (:func:`params_table`).
+    hcurves, clearances : DataFrame or list of str, optional
+        The horizontal curves and the 3D stage's clearances; given (with the 3D columns in
+        ``profiles``), the roadside rows of ``sql/roadside.sql`` join the inventory.
 
     Returns
     -------
@@ -101,6 +104,9 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
         tables = {"roads": roads, "profiles": profiles, "keypoints": keypoints, "curves": curves,
                   "hazards": hazards, "cset": set_row,
                   "cspeeds": cset.table, "params": params_table(cfg)}
+        roadside = hcurves is not None and clearances is not None
+        if roadside:
+            tables |= {"hcurves": hcurves, "clearances": clearances}
         for name, frame in tables.items():
             if isinstance(frame, (str, list, tuple)):
                 parquet_view(con, name, frame)
@@ -109,8 +115,13 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
         register_formulas(con)
         for name in ("criteria_macros", "evaluate", "inventory"):
             con.sql(sql_text(name))
+        roadside = roadside and "sight_3d_fwd_m" in {r[0] for r in con.sql("DESCRIBE profiles").fetchall()}
+        if roadside:
+            con.sql(sql_text("roadside"))
         curve_eval = con.sql("SELECT * FROM curve_eval ORDER BY road_id, curve_no").df()
-        inventory = con.sql("SELECT * FROM inventory").df()
+        inventory = con.sql("SELECT * FROM inventory_all" if roadside else
+                            "SELECT *, NULL::BIGINT AS hcurve_no, NULL::DOUBLE AS clear_area_m2, "
+                            "NULL::DOUBLE AS clear_volume_m3 FROM inventory").df()
         summary = con.sql(sql_text("summary")).df()
     finally:
         con.close()

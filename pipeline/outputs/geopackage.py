@@ -46,8 +46,9 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     Returns
     -------
     None
-        Layers ``roads``, ``curves``, ``deficiencies`` and ``horizontal_curves`` (lines), and
-        ``pvis`` and ``hidden_hazards`` (points).
+        Layers ``roads``, ``curves``, ``deficiencies`` and ``horizontal_curves`` (lines),
+        ``pvis`` and ``hidden_hazards`` (points), and where the 3D sight found something to clear
+        ``sight_clearance`` (polygons) and ``sight_blocking_points`` (points).
     """
     roads = result.roads
     t = roads.table.set_index("road_id", drop=False)
@@ -67,7 +68,41 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
         points = [shapely.points(shapely.get_coordinates(g)[0]) for g in cut(frame, "at_m", "at_m", 0.0)]
         gpd.GeoDataFrame(conv(frame), geometry=points, crs=crs).to_file(path, layer=layer, driver="GPKG",
                                                                       engine="pyogrio")
-    store_styles(path, ["roads", "curves", "deficiencies", "horizontal_curves", "pvis", "hidden_hazards"])
+    layers = ["roads", "curves", "deficiencies", "horizontal_curves", "pvis", "hidden_hazards"]
+    layers += _clearance_layers(path, result, deficiencies, crs, conv)
+    store_styles(path, layers)
+
+
+def _clearance_layers(path: Path, result, deficiencies: pd.DataFrame, crs, conv) -> list[str]:
+    """The 3D sight's areas to clear (``sight_clearance``, polygons) and blocking points
+    (``sight_blocking_points``), each with the rank of its roadside row in the inventory; none
+    where the 3D stage found nothing to clear. Geometry as the stage wrote it, in the roads' CRS."""
+    cl = result.clearances
+    cl = cl[cl["clearance_wkt"].notna()] if len(cl) else cl
+    if not len(cl):
+        return []
+    road = deficiencies[deficiencies["kind"] == "roadside"] if "kind" in deficiencies else deficiencies.iloc[:0]
+    ranks = []
+    for r in cl.itertuples():
+        m = road[(road["road_id"] == r.road_id) & (road["direction"] == r.direction)
+                 & (road["from_m"] <= r.to_m + result.step_m / 2) & (road["to_m"] >= r.from_m - result.step_m / 2)]
+        ranks.append(int(m["rank"].min()) if len(m) else None)
+    attrs = cl.drop(columns=["clearance_wkt", "blocking_wkt"]).assign(rank=pd.array(ranks, dtype="Int64"))
+    gpd.GeoDataFrame(conv(attrs.reset_index(drop=True)), geometry=list(shapely.from_wkt(cl["clearance_wkt"])),
+                     crs=crs).to_file(path, layer="sight_clearance", driver="GPKG", engine="pyogrio")
+    pts, rows = [], []
+    for i, w in enumerate(cl["blocking_wkt"]):
+        if isinstance(w, str):
+            g = shapely.get_parts(shapely.from_wkt(w))
+            pts.extend(g)
+            rows.extend([i] * len(g))
+    layers = ["sight_clearance"]
+    if pts:
+        keep = ["road_id", "direction", "from_m", "to_m", "limit_kind", "hcurve_no", "rank"]
+        gpd.GeoDataFrame(conv(attrs[keep].iloc[rows].reset_index(drop=True)), geometry=pts, crs=crs).to_file(
+            path, layer="sight_blocking_points", driver="GPKG", engine="pyogrio")
+        layers.append("sight_blocking_points")
+    return layers
 
 
 def _point_layers(curves: pd.DataFrame, deficiencies: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:

@@ -17,6 +17,8 @@ from .report_style import ROAD_GREY, SEVERITY_COLOURS
 
 CURVE_BLUE = "#3A6EA5"
 HCURVE_GREEN = "#4D8B31"
+CLEAR_ORANGE = "#E08A1E"
+BLOCK_BROWN = "#7A3B10"
 
 _SLD_HEAD = ('<?xml version="1.0" encoding="UTF-8"?><StyledLayerDescriptor version="1.1.0" '
              'xmlns="http://www.opengis.net/sld" xmlns:se="http://www.opengis.net/se" '
@@ -37,6 +39,13 @@ def _point(colour: str, size: float) -> str:
             f'<se:Size>{size}</se:Size></se:Graphic></se:PointSymbolizer>')
 
 
+def _polygon(colour: str, opacity: float) -> str:
+    return (f'<se:PolygonSymbolizer><se:Fill><se:SvgParameter name="fill">{colour}</se:SvgParameter>'
+            f'<se:SvgParameter name="fill-opacity">{opacity}</se:SvgParameter></se:Fill><se:Stroke>'
+            f'<se:SvgParameter name="stroke">{colour}</se:SvgParameter>'
+            f'<se:SvgParameter name="stroke-width">1</se:SvgParameter></se:Stroke></se:PolygonSymbolizer>')
+
+
 def _rule(title: str, symbol: str, field: str | None = None, value: str | None = None) -> str:
     where = "" if field is None else (
         f"<ogc:Filter><ogc:PropertyIsEqualTo><ogc:PropertyName>{field}</ogc:PropertyName>"
@@ -50,15 +59,16 @@ def layer_sld(layer: str) -> str:
     Parameters
     ----------
     layer : str
-        ``roads``, ``curves``, ``horizontal_curves``, ``deficiencies``, ``pvis`` or
-        ``hidden_hazards``.
+        ``roads``, ``curves``, ``horizontal_curves``, ``deficiencies``, ``pvis``,
+        ``hidden_hazards``, ``sight_clearance`` or ``sight_blocking_points``.
 
     Returns
     -------
     str
         An SLD 1.1 document: grey roads, blue vertical curves, green horizontal curves, PVIs as
-        small blue points, and deficient stretches and hidden hazards by severity (the worst the
-        darkest and widest).
+        small blue points, deficient stretches and hidden hazards by severity (the worst the
+        darkest and widest), the areas to clear for the 3D sight half-transparent orange and the
+        blocking points small and brown.
     """
     widths = {"minor": 3.0, "moderate": 4.5, "severe": 6.0}
     if layer in ("deficiencies", "hidden_hazards"):
@@ -66,7 +76,9 @@ def layer_sld(layer: str) -> str:
         rules = "".join(_rule(sev, make(colour, sev), "severity", sev) for sev, colour in SEVERITY_COLOURS.items())
     else:
         symbol = {"roads": _line(ROAD_GREY, 1.5), "curves": _line(CURVE_BLUE, 2.5),
-                  "horizontal_curves": _line(HCURVE_GREEN, 2.5), "pvis": _point(CURVE_BLUE, 6)}[layer]
+                  "horizontal_curves": _line(HCURVE_GREEN, 2.5), "pvis": _point(CURVE_BLUE, 6),
+                  "sight_clearance": _polygon(CLEAR_ORANGE, 0.5),
+                  "sight_blocking_points": _point(BLOCK_BROWN, 5)}[layer]
         rules = _rule(layer.replace("_", " "), symbol)
     return _SLD_HEAD.format(name=escape(layer)) + rules + _SLD_TAIL
 

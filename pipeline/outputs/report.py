@@ -30,6 +30,7 @@ from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road
 from .mapview import network_map_svg
 from .figures import pyplot as figures_pyplot
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
+from .sight_figure import roadside_section
 from .sites import site_text, worst_sites
 from .tables import curves_table, deficiencies_table
 from .workbook import brief_lines
@@ -86,7 +87,8 @@ def _road_anchors(road_ids) -> dict:
 
 TOC = (("brief", "In brief: the worst sites"), ("data-quality", "What this ground data can support"),
        ("summary", "Network summary"), ("map", "Network overview"), ("inventory", "Ranked inventory"),
-       ("curves", "Deficient curves"), ("roads", "Road by road"), ("method", "Method and criteria"),
+       ("curves", "Deficient curves"), ("roadside", "Roadside sight (3D)"), ("roads", "Road by road"),
+       ("method", "Method and criteria"),
        ("notes", "Data notes and skipped roads"), ("cautions", "Cautions"))
 
 
@@ -377,6 +379,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     parts += _map_section(result, units, map_svg)
     parts += ["<div class='wide'>", *_inventory_section(result.evaluation.inventory, units, paged, anchors), "</div>"]
     parts += _curve_section(pages, pngs, units)
+    parts += roadside_section(result, units, cfg)
     parts += _roads_section(result, cfg, units, roads, paged, anchors, road_pngs)
     parts += _method_section(method)
     parts += _notes_section(result, summary, units)

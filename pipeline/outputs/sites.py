@@ -76,5 +76,10 @@ def site_text(r: pd.Series) -> str:
     short = f"sight distance {float(r[f'shortfall_{unit}']):.0f} {unit} short" \
         + (f" of the {float(need):.0f} {unit} required" if pd.notna(need) else "")
     hint = r.get("treatment_hint")
-    return f"{road}, curve {int(r['curve_no'])}{kind}: {hidden}; {short}" \
+    cno, hno = r.get("curve_no"), r.get("hcurve_no")
+    where = f"curve {int(cno)}" if pd.notna(cno) else (
+        f"horizontal curve {int(hno)}" if pd.notna(hno) and hno else "roadside")  # roadside rows: 3D sight lines
+    if r.get("kind") == "roadside":
+        hidden = f"{r.get('limit_kind')} blocks the view of the road ahead"
+    return f"{road}, {where}{kind}: {hidden}; {short}" \
         + (f"; {hint}" if isinstance(hint, str) and hint else "") + "."

@@ -12,7 +12,7 @@ import pandas as pd
 
 from ..core.tables import empty_frame
 
-TABLES = ("profiles", "curves", "keypoints", "hazards", "hcurves", "notes", "status")
+TABLES = ("profiles", "curves", "keypoints", "hazards", "hcurves", "notes", "status", "clearances")
 
 
 def chunk_rows(table: pd.DataFrame, chunk_km: float) -> list[np.ndarray]:

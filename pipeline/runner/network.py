@@ -204,7 +204,9 @@ def _judge(result: NetworkResult, cfg: Config, progress: Progress) -> None:
     t0 = time.perf_counter()
     with progress.stage("judging curves (DuckDB)") as tick:
         result.evaluation = evaluate(result.road_table(), result.work.files("profiles"), result.curves,
-                                     result.work.files("keypoints"), result.hazards, result.criteria, cfg)
+                                     result.work.files("keypoints"), result.hazards, result.criteria, cfg,
+                                     hcurves=result.work.files("hcurves") or None,
+                                     clearances=result.work.files("clearances") or None)
         tick()
     result.timings["evaluate"] = time.perf_counter() - t0
 

@@ -120,6 +120,11 @@ class NetworkResult:
         """
         return self._read("status")
 
+    @property
+    def clearances(self) -> pd.DataFrame:
+        """What to clear where the 3D sight falls short (the 3D stage's rows), in road order."""
+        return self._order(self._read("clearances"), ["direction", "from_m"])
+
     def road_table(self) -> pd.DataFrame:
         """The roads with their speeds and what became of them, in input order.
 

@@ -27,6 +27,7 @@ from ..profile.sampler import GroundSampler
 from .alignment_stage import UNCERTAINTY_COLUMNS, alignment_options, curve_uncertainties, road_alignment
 from .plan_stage import HCURVE_CHECK_COLUMNS, PREDICTED, road_hcurve_checks, road_plan, road_speeds
 from .profile_stage import artefact_options, road_profile
+from .sight3d_stage import road_sight_3d
 from .sight_stage import HAZARD_COLUMNS, road_hazards, road_sight
 
 __all__ = [
@@ -52,6 +53,7 @@ class RoadOutcome:
     hcurves: pd.DataFrame | None = None
     hazards: pd.DataFrame | None = None
     road: object = None  # the fitted alignment (alignment.RoadProfile), once the sight stage built it
+    clearances: pd.DataFrame | None = None  # what to clear where the 3D sight falls short (3D sight stage)
     data: dict = field(default_factory=dict)  # what the ground data resolve (profile stage)
     seconds: dict[str, float] = field(default_factory=dict)
 
@@ -120,8 +122,24 @@ def process_road(row: pd.Series, sampler: GroundSampler, cfg: Config, to_source,
     out.hcurves = road_hcurve_checks(out.hcurves, out.profile, cset, cfg)
     out.hazards = road_hazards(out.road_id, out.profile, out.curves, out.hcurves, al.stretches, out.road,
                                (junctions or []) + sampler.junction_points(row), cset, cfg)
-    out.seconds["speed and hazards"] = time.perf_counter() - t4
+    t5 = time.perf_counter()
+    out.seconds["speed and hazards"] = t5 - t4
+    _sight_3d(out, row, ps.polyline, sampler, cset, cfg, to_source)
+    out.seconds["3D sight"] = time.perf_counter() - t5
     return out
+
+
+def _sight_3d(out: RoadOutcome, row: pd.Series, polyline, sampler: GroundSampler, cset, cfg: Config, to_source) -> None:
+    """The 3D sight stage's columns added to the road's profile and curve tables (NaN where it
+    does not run), its clearances and notes kept."""
+    s3 = road_sight_3d(row, out.profile, out.curves, out.hcurves, out.road, polyline, sampler, cset, cfg, to_source)
+    out.profile = out.profile.assign(**s3.columns)
+    if out.curves is not None and len(out.curves):
+        out.curves = out.curves.assign(sight_3d_min_m=s3.curves if s3.curves is not None else np.nan)
+    if out.hcurves is not None and len(out.hcurves):
+        out.hcurves = out.hcurves.assign(sight_3d_min_m=s3.hcurves if s3.hcurves is not None else np.nan)
+    out.clearances = s3.clearances
+    out.notes.extend(s3.notes)
 
 
 @dataclass
@@ -193,6 +211,7 @@ def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict) -> dict:
         "keypoints": _frame([o.keypoints for o in outcomes]),
         "hazards": _frame([o.hazards for o in outcomes]),
         "hcurves": _frame([o.hcurves for o in outcomes]),
+        "clearances": _frame([o.clearances for o in outcomes]),
         "notes": pd.DataFrame(notes, columns=["road_id", "note", "from_m", "to_m", "detail"]),
         "status": pd.DataFrame({"road_id": [o.road_id for o in outcomes], "status": [o.status for o in outcomes],
                                 "reason": [o.reason for o in outcomes],
