@@ -111,15 +111,20 @@ class _PlainProgress:
         self.stream = stream
 
     @contextlib.contextmanager
-    def stage(self, name: str, total: int | None = None):
+    def stage(self, name: str, total: float | None = None, unit: str = ""):
         t0 = time.perf_counter()
-        count = [0]
+        count = [0.0]
 
-        def tick(n: int = 1):
+        def tick(n: float = 1, what: str | None = None):
             count[0] += n
 
         yield tick
-        what = f", {count[0]} of {total}" if total is not None else ""
+        if total is None:
+            what = ""
+        elif unit:
+            what = f", {count[0]:,.1f} of {total:,.1f} {unit}"
+        else:
+            what = f", {count[0]:g} of {total:g} steps"
         print(f"{name}{what} ({time.perf_counter() - t0:.1f} s)", file=self.stream)
 
     def message(self, text: str) -> None:
@@ -127,27 +132,46 @@ class _PlainProgress:
 
 
 class _RichProgress:
-    """Progress bars on stderr, one per stage, with a per-road count and ETA."""
+    """Progress bars on stderr, one per stage: the amount done (km of road for the per-road
+    stages, steps for writing outputs, with the step at hand) and the time left, estimated from
+    the amount done so far (elapsed x left / done), shown from the first tick on."""
 
     def __init__(self, console):
-        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
-                                   TimeRemainingColumn)
+        from rich.progress import BarColumn, Progress, ProgressColumn, TextColumn, TimeElapsedColumn
+        from rich.text import Text
+
+        class Amount(ProgressColumn):
+            def render(self, task):
+                unit = task.fields.get("unit", "")
+                if unit:
+                    return Text(f"{task.completed:,.1f}/{task.total:,.1f} {unit}")
+                return Text(f"{task.completed:,.0f}/{task.total:,.0f}")
+
+        class TimeLeft(ProgressColumn):
+            def render(self, task):
+                if task.finished:
+                    return Text("done")
+                elapsed = task.elapsed or 0.0
+                if not task.completed or not task.total or elapsed <= 0:
+                    return Text("eta -:--:--")
+                left = int(round(elapsed * (task.total - task.completed) / task.completed))
+                return Text(f"eta {left // 3600}:{left // 60 % 60:02d}:{left % 60:02d}")
 
         self.console = console
-        self._cols = (TextColumn("{task.description:<28}"), BarColumn(), MofNCompleteColumn(),
-                      TimeElapsedColumn(), TextColumn("eta"), TimeRemainingColumn())
+        self._cols = (TextColumn("{task.description:<28}"), BarColumn(), Amount(), TimeElapsedColumn(), TimeLeft(),
+                      TextColumn("{task.fields[step]}"))
         self._progress_cls = Progress
 
     @contextlib.contextmanager
-    def stage(self, name: str, total: int | None = None):
+    def stage(self, name: str, total: float | None = None, unit: str = ""):
         with self._progress_cls(*self._cols, console=self.console, transient=False) as prog:
-            task = prog.add_task(name, total=total if total is not None else 1)
+            task = prog.add_task(name, total=total if total is not None else 1, unit=unit, step="")
 
-            def tick(n: int = 1):
-                prog.advance(task, n)
+            def tick(n: float = 1, what: str | None = None):
+                prog.update(task, advance=n, step=what or "")
 
             yield tick
-            prog.update(task, completed=total if total is not None else 1)
+            prog.update(task, completed=total if total is not None else 1, step="")
 
     def message(self, text: str) -> None:
         self.console.print(text)
@@ -212,8 +236,7 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     with worker_pool(cfg) as pool:
         result = audit(roads, ground, cfg, progress=progress, work_dir=work_dir,
                        resume=getattr(args, "resume", False), pool=pool, command=sys.argv[1:])
-        with progress.stage("writing outputs"):
-            summary = result.write(out, pool)
+        summary = result.write(out, pool, progress=progress)
     shutil.rmtree(work_dir, ignore_errors=True)
     _print_summary(summary, out, args.quiet)
     failed = summary.get("output_failures") or []

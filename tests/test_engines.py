@@ -145,3 +145,31 @@ def test_dask_local_cluster_equals_one_process(serial, samples):
     assert on_dask.summary["chunks"]["engine"] == "dask" and on_dask.summary["chunks"]["total"] >= 4
     for a, b in zip(_frames(serial[0]), _frames(on_dask)):
         pd.testing.assert_frame_equal(a, b, check_exact=False, rtol=1e-9, atol=1e-9)
+
+
+def test_terminal_progress_shows_time_left_from_the_first_km():
+    """On a terminal the time left is elapsed x (total - done) / done, shown from the first
+    tick on (no '-:--:--' once some road is done), with the km done and the step at hand."""
+    pytest.importorskip("rich", reason="rich not installed")
+    import io
+    import time
+
+    from rich.console import Console
+
+    from pipeline.cli import _RichProgress
+
+    buf = io.StringIO()
+    progress = _RichProgress(Console(file=buf, force_terminal=True, width=160))
+    with progress.stage("profiles, curves, sight", total=200.0, unit="km") as tick:
+        time.sleep(0.2)
+        tick(50.0)
+        time.sleep(0.3)  # the display refreshes ten times a second
+        progress_line = buf.getvalue().rsplit("\r", 1)[-1]
+    assert "50.0/200.0 km" in progress_line
+    assert "eta 0:00:0" in progress_line and "-:--:--" not in progress_line
+    buf = io.StringIO()
+    progress = _RichProgress(Console(file=buf, force_terminal=True, width=160))
+    with progress.stage("writing outputs", total=5) as tick:
+        tick(what="workbook")
+        time.sleep(0.3)
+        assert "1/5" in buf.getvalue() and "workbook" in buf.getvalue()
