@@ -220,6 +220,90 @@ def dem_cell_m(dem: DemGround, affine, y_mid: float) -> float:
     return float(np.sqrt(w * h) * factor)
 
 
+def dem_window(src, x: np.ndarray, y: np.ndarray, margin: int = 2):
+    """The window of cells around points ``x, y`` (nothing is read).
+
+    Parameters
+    ----------
+    src : rasterio.DatasetReader
+        The open DEM.
+    x, y : numpy.ndarray
+        Points in the DEM's CRS.
+    margin : int, optional
+        Cells added on every side of the points' bounding box.
+
+    Returns
+    -------
+    rasterio.windows.Window or None
+        The window, clipped to the raster; ``None`` when the points lie wholly outside it.
+    """
+    cols, rows = map_to_pixel(src.transform, x, y)
+    finite = np.isfinite(cols) & np.isfinite(rows)
+    if not finite.any():
+        return None
+    c0 = int(np.floor(np.nanmin(cols[finite]))) - margin
+    c1 = int(np.ceil(np.nanmax(cols[finite]))) + margin
+    r0 = int(np.floor(np.nanmin(rows[finite]))) - margin
+    r1 = int(np.ceil(np.nanmax(rows[finite]))) + margin
+    c0, r0 = max(c0, 0), max(r0, 0)
+    c1, r1 = min(c1, src.width), min(r1, src.height)
+    if c1 <= c0 or r1 <= r0:
+        return None
+    return Window(c0, r0, c1 - c0, r1 - r0)
+
+
+def read_dem_cells(dem: DemGround, src, win) -> np.ndarray:
+    """The DEM's cells in a window, in metres, nodata as NaN.
+
+    Parameters
+    ----------
+    dem : DemGround
+        The DEM (band, nodata, elevation unit).
+    src : rasterio.DatasetReader
+        The open DEM.
+    win : rasterio.windows.Window
+        The cells to read (inside the raster).
+
+    Returns
+    -------
+    numpy.ndarray
+        Elevations (m), float64.
+    """
+    data = src.read(dem.band, window=win, masked=True)
+    arr = np.asarray(data.filled(np.nan) if np.ma.isMaskedArray(data) else data, dtype=float)
+    if dem.nodata is not None and np.isfinite(dem.nodata):
+        arr[arr == dem.nodata] = np.nan
+    return arr * dem.metres_per_unit
+
+
+def dem_block_size(src, band: int = 1, default: int = 512) -> tuple[int, int]:
+    """The block (rows, columns) to read a DEM by: whole tiles of its own where it is tiled (a
+    cloud-optimised or tiled GeoTIFF; as many as make about ``default`` cells a side), else
+    ``default`` square.
+
+    Parameters
+    ----------
+    src : rasterio.DatasetReader
+        The open DEM.
+    band : int, optional
+        The band read.
+    default : int, optional
+        Block side for a striped or untiled raster (cells).
+
+    Returns
+    -------
+    tuple of int
+        Rows and columns of a block.
+    """
+    try:
+        h, w = src.block_shapes[band - 1]
+    except (IndexError, AttributeError):
+        return default, default
+    if h >= 16 and w >= 16 and (h < src.height or w < src.width):  # tiled: whole tiles, about default a side
+        return int(h * max(1, default // h)), int(w * max(1, default // w))
+    return default, default
+
+
 def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 2):
     """The DEM cells around points ``x, y``.
 
@@ -241,24 +325,10 @@ def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 
         when the points lie wholly outside the raster.
     """
     with rasterio.open(dem.path) as src:
-        cols, rows = map_to_pixel(src.transform, x, y)
-        finite = np.isfinite(cols) & np.isfinite(rows)
-        if not finite.any():
+        win = dem_window(src, x, y, margin)
+        if win is None:
             return None, None
-        c0 = int(np.floor(np.nanmin(cols[finite]))) - margin
-        c1 = int(np.ceil(np.nanmax(cols[finite]))) + margin
-        r0 = int(np.floor(np.nanmin(rows[finite]))) - margin
-        r1 = int(np.ceil(np.nanmax(rows[finite]))) + margin
-        c0, r0 = max(c0, 0), max(r0, 0)
-        c1, r1 = min(c1, src.width), min(r1, src.height)
-        if c1 <= c0 or r1 <= r0:
-            return None, None
-        win = Window(c0, r0, c1 - c0, r1 - r0)
-        data = src.read(dem.band, window=win, masked=True)
-        arr = np.asarray(data.filled(np.nan) if np.ma.isMaskedArray(data) else data, dtype=float)
-        if dem.nodata is not None and np.isfinite(dem.nodata):
-            arr[arr == dem.nodata] = np.nan
-        return arr * dem.metres_per_unit, src.window_transform(win)
+        return read_dem_cells(dem, src, win), src.window_transform(win)
 
 
 def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointGround:
