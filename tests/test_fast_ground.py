@@ -77,7 +77,7 @@ def test_files_the_fast_read_leaves_get_the_general_checks(tmp_path, samples, ro
 
 
 def test_dem_read_by_block_equals_the_whole_raster(tmp_path, monkeypatch):
-    """A tiled GeoTIFF (64 x 64 tiles, nodata cells) sampled block by block gives bit for bit
+    """A tiled GeoTIFF (128 x 128 tiles, read four by four; nodata cells) sampled block by block gives bit for bit
     the bilinear values of the whole raster in memory (numpy reference: the same
     ``bilinear`` on the full array), at points on block edges, the raster edge and outside it;
     and no read is larger than a block with its one-cell rim."""
@@ -89,18 +89,18 @@ def test_dem_read_by_block_equals_the_whole_raster(tmp_path, monkeypatch):
     from pipeline.profile.stations import bilinear
 
     rng = np.random.default_rng(3)
-    z = rng.normal(100.0, 5.0, (300, 260)).astype("float32")
+    z = rng.normal(100.0, 5.0, (1300, 1160)).astype("float32")
     z[40:45, 60:70] = -9999.0
     path = tmp_path / "tiled.tif"
     aff = from_origin(1000.0, 5000.0, 1.0, 1.0)
-    with rasterio.open(path, "w", driver="GTiff", width=260, height=300, count=1, dtype="float32",
-                       crs="EPSG:32633", transform=aff, nodata=-9999.0, tiled=True, blockxsize=64,
-                       blockysize=64) as dst:
+    with rasterio.open(path, "w", driver="GTiff", width=1160, height=1300, count=1, dtype="float32",
+                       crs="EPSG:32633", transform=aff, nodata=-9999.0, tiled=True, blockxsize=128,
+                       blockysize=128) as dst:
         dst.write(z, 1)
     dem = G.open_ground(path, load_config(None, {}), None)
     full = np.where(z == -9999.0, np.nan, z.astype(float))
-    x = np.concatenate([rng.uniform(995.0, 1265.0, 4000), [1000.0, 1260.0, 1064.0, 1128.0, 1000.5]])
-    y = np.concatenate([rng.uniform(4695.0, 5005.0, 4000), [5000.0, 4700.0, 4936.0, 4872.0, 4999.5]])
+    x = np.concatenate([rng.uniform(995.0, 2165.0, 6000), [1000.0, 2160.0, 1512.0, 1511.5, 1000.5, 1512.5]])
+    y = np.concatenate([rng.uniform(3695.0, 5005.0, 6000), [5000.0, 3700.0, 4488.0, 4488.5, 4999.5, 4487.5]])
     sizes = []
     real = sampler_mod.read_dem_cells
 
@@ -116,5 +116,6 @@ def test_dem_read_by_block_equals_the_whole_raster(tmp_path, monkeypatch):
     np.testing.assert_array_equal(np.isnan(got), np.isnan(want))
     np.testing.assert_allclose(got, want, rtol=0, atol=1e-9)
     with rasterio.open(path) as src:
-        assert max(h for h, _ in sizes) <= ground_mod.dem_block_size(src)[0] + 2 < 300
-    assert np.isnan(got[(x < 1000) | (x > 1260) | (y < 4700) | (y > 5000)]).all()
+        assert max(h for h, _ in sizes) <= ground_mod.dem_block_size(src)[0] + 2 == 514 < 1300
+    assert np.isnan(got[(x < 1000) | (x > 2160) | (y < 3700) | (y > 5000)]).all()
+    assert np.isfinite(got[[-4, -3]]).all()  # on the corner of four blocks
