@@ -14,14 +14,50 @@ import sys
 import time
 from pathlib import Path
 
-from .api import audit
 from .core.config import example_toml, load_config
 from .core.errors import InputError
 from .core.resources import sample_paths
 from .core.version import __version__
-from .evaluate.criteria import get_set, load_sets, template
-from .runner.checks import check_inputs
-from .runner.network import Progress, worker_pool
+from .runner.progress import Progress
+
+# the audit itself (pipeline.api, the runner and the stages) is imported by the commands that
+# run it, so that --help and the light commands answer at once
+
+
+def audit(*args, **kwargs):
+    from .api import audit as run_audit
+
+    return run_audit(*args, **kwargs)
+
+
+def check_inputs(*args, **kwargs):
+    from .runner.checks import check_inputs as run_checks
+
+    return run_checks(*args, **kwargs)
+
+
+def worker_pool(cfg):
+    from .runner.engines import worker_pool as pool
+
+    return pool(cfg)
+
+
+def get_set(*args, **kwargs):
+    from .evaluate.criteria import get_set as get
+
+    return get(*args, **kwargs)
+
+
+def load_sets(*args, **kwargs):
+    from .evaluate.criteria import load_sets as load
+
+    return load(*args, **kwargs)
+
+
+def template():
+    from .evaluate.criteria import template as tpl
+
+    return tpl()
 
 DESCRIPTION = (
     "Screening audit of rural roads for stopping-sight-distance (SSD) shortfalls on crest and "
