@@ -43,39 +43,8 @@ def pyplot():
     return plt
 
 
-_KEPT: dict = {}  # figure size -> the figure this process keeps for it (see reused_subplots)
-
-
-def reused_subplots(figsize: tuple[float, float]):
-    """A figure and axes of this size, kept for the life of the process and cleared per drawing.
-
-    Building a figure from nothing costs more than clearing one; a process that draws many
-    figures of a size (the report's curve pages, in the worker pool) reuses one.
-    :func:`png_data_uri` leaves such a figure open.
-
-    Parameters
-    ----------
-    figsize : tuple of float
-        Width and height (inches).
-
-    Returns
-    -------
-    tuple
-        ``(figure, axes)``: the figure cleared, with one new axes filling its default
-        subplot area.
-    """
-    plt = pyplot()
-    key = tuple(float(v) for v in figsize)
-    fig = _KEPT.get(key)
-    if fig is None or not plt.fignum_exists(fig.number):
-        fig = _KEPT[key] = plt.figure(figsize=key)
-    else:
-        fig.clear()
-    return fig, fig.add_subplot()
-
-
 def png_data_uri(fig, dpi: int = 100) -> str:
-    """The figure as an inline PNG; the figure is closed (unless kept by :func:`reused_subplots`).
+    """The figure as an inline PNG; the figure is closed.
 
     Figures are laid out when made, so one rendering pass does.
 
@@ -94,8 +63,7 @@ def png_data_uri(fig, dpi: int = 100) -> str:
     plt = pyplot()
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi)
-    if not any(f is fig for f in _KEPT.values()):
-        plt.close(fig)
+    plt.close(fig)
     return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
 
@@ -265,7 +233,7 @@ def curve_figure(prof: pd.DataFrame, curve: pd.Series, rows: pd.DataFrame, hcurv
     hi = min(max(curve["pvt_m"], worst["to_m"]) + span, prof["chainage_m"].max())
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
     L, E = units.length, units.length_label
-    fig, ax = reused_subplots((10.5, 3.9))
+    fig, ax = plt.subplots(figsize=(10.5, 3.9))
     fig.subplots_adjust(left=0.07, right=0.70, bottom=0.14, top=0.91)
     _profile_and_pv_marks(ax, p, curve, L)
     _sight_lines(ax, p, curve, worst, rules, units)
