@@ -69,8 +69,8 @@ def worker_pool(cfg: Config):
     Workers are started with 'spawn' (clean processes, no inherited threads or open files)
     and one BLAS thread each: the workers already fill the cores, and the matrices are small.
     Every process is started at once (one no-op task each), so that they start up while this
-    process reads the inputs; the environment is still set for the pool's whole life, as a
-    process that dies is replaced. Each worker reports the roads it finishes on the pool's
+    process reads the inputs; the environment is set for the pool's whole life (any process
+    it starts inherits it). Each worker reports the roads it finishes on the pool's
     ``road_queue`` (for the progress display).
 
     Parameters
