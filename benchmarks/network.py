@@ -93,10 +93,14 @@ def make_network(km: float, out: Path, seed: int = 1, dem: bool = False, spacing
 
 
 def _dem(gdf, points, out: Path) -> Path:
-    """A 1 m corridor DEM from the ground points (nearest point within 6 m), nodata elsewhere;
-    written in tiles of road-grid cells so memory stays bounded."""
+    """A 1 m corridor DEM from the ground points (nearest point within 6 m), nodata elsewhere.
+
+    A tiled (512 x 512), compressed, sparse GeoTIFF: only the cells within 6 m of a point are
+    computed and written, road by road, so a long network's DEM costs its corridors, not its
+    bounding box."""
     import rasterio
     from rasterio.transform import from_origin
+    from rasterio.windows import Window
     from scipy.spatial import cKDTree
 
     minx, miny, maxx, maxy = gdf.total_bounds
@@ -106,23 +110,25 @@ def _dem(gdf, points, out: Path) -> Path:
     path = out / "dem_1m.tif"
     tree = cKDTree(points[["x", "y"]].to_numpy())
     zs = points["z"].to_numpy()
-    with rasterio.open(path, "w", driver="GTiff", width=w, height=h, count=1, dtype="float32", crs=CRS,
+    reach = 6
+    dc, dr = np.meshgrid(np.arange(-reach, reach + 1), np.arange(-reach, reach + 1))
+    with rasterio.open(path, "w+", driver="GTiff", width=w, height=h, count=1, dtype="float32", crs=CRS,
                        transform=from_origin(minx, maxy, 1.0, 1.0), nodata=-9999.0, compress="deflate",
-                       tiled=True, blockxsize=512, blockysize=512, BIGTIFF="IF_SAFER") as dst:
-        from rasterio.windows import Window
-
-        tile = 2048
-        for r0 in range(0, h, tile):
-            for c0 in range(0, w, tile):
-                hh, ww = min(tile, h - r0), min(tile, w - c0)
-                xs = minx + c0 + np.arange(ww) + 0.5
-                ys = maxy - r0 - np.arange(hh) - 0.5
-                gx, gy = np.meshgrid(xs, ys)
-                d, i = tree.query(np.column_stack([gx.ravel(), gy.ravel()]), distance_upper_bound=6.0)
-                arr = np.full(gx.size, -9999.0, dtype="float32")
-                ok = np.isfinite(d)
-                arr[ok] = zs[i[ok]]
-                dst.write(arr.reshape(hh, ww), 1, window=Window(c0, r0, ww, hh))
+                       tiled=True, blockxsize=512, blockysize=512, BIGTIFF="YES", SPARSE_OK="TRUE") as dst:
+        for _, g in points.groupby("road_id", sort=False):
+            col = np.floor(g["x"].to_numpy() - minx).astype(np.int64)
+            row = np.floor(maxy - g["y"].to_numpy()).astype(np.int64)
+            cells = np.unique(((row[:, None] + dr.ravel()) * w + (col[:, None] + dc.ravel())).ravel())
+            r, c = np.divmod(cells, w)
+            ok = (r >= 0) & (r < h) & (c >= 0) & (c < w)
+            r, c = r[ok], c[ok]
+            d, i = tree.query(np.column_stack([minx + c + 0.5, maxy - r - 0.5]), distance_upper_bound=float(reach))
+            hit = np.isfinite(d)
+            r0, c0 = int(r.min()), int(c.min())
+            win = Window(c0, r0, int(c.max()) - c0 + 1, int(r.max()) - r0 + 1)
+            arr = dst.read(1, window=win)  # keeps a neighbouring road's cells in the window
+            arr[r[hit] - r0, c[hit] - c0] = zs[i[hit]]
+            dst.write(arr, 1, window=win)
     return path
 
 

@@ -20,8 +20,20 @@ rules, inventory), ``outputs`` (tables, workbook, GeoPackage, report), and ``run
 network: chunks, engines, work folder); ``core`` holds settings, units and errors.
 """
 
-from .api import AuditResult, audit, validate
-from .core.config import Settings
 from .core.version import __version__
 
 __all__ = ["audit", "validate", "AuditResult", "Settings", "__version__"]
+
+
+def __getattr__(name: str):
+    """The public interface, imported on first use: ``import pipeline`` (and the command's
+    ``--help``) stays quick, and the stages' libraries load when an audit is asked for."""
+    if name in ("audit", "validate", "AuditResult"):
+        from . import api
+
+        return getattr(api, name)
+    if name == "Settings":
+        from .core.config import Settings
+
+        return Settings
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -113,7 +113,7 @@ class AuditResult:
         order = [r for r in self._network.road_table()["road_id"] if r in parts]
         return pd.concat([parts[r] for r in order], ignore_index=True) if order else pd.DataFrame()
 
-    def write(self, out_dir: str | Path, pool=None) -> dict:
+    def write(self, out_dir: str | Path, pool=None, progress: Progress | None = None) -> dict:
         """Write every output file into ``out_dir`` (made complete or not at all).
 
         Parameters
@@ -122,6 +122,8 @@ class AuditResult:
             Output folder; replaced only if it holds an earlier run.
         pool : executor, optional
             Worker processes to draw figures in.
+        progress : Progress, optional
+            Where to report each output written (silent by default).
 
         Returns
         -------
@@ -132,7 +134,7 @@ class AuditResult:
         t0 = time.perf_counter()
         summary = dict(self.summary)
         with staging_folder(Path(out_dir)) as tmp:
-            summary["output_failures"] = write_outputs(tmp, self._network, summary, self._cfg, pool)
+            summary["output_failures"] = write_outputs(tmp, self._network, summary, self._cfg, pool, progress)
             self._network.timings["export"] = time.perf_counter() - t0
             finished = datetime.now(timezone.utc)
             summary["finished_utc"] = finished.isoformat(timespec="seconds")

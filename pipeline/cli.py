@@ -14,16 +14,51 @@ import sys
 import time
 from pathlib import Path
 
-from .api import audit
 from .core.config import example_toml, load_config
 from .core.errors import InputError
 from .core.resources import sample_paths
 from .core.version import __version__
-from .evaluate.criteria import get_set, load_sets, template
 from .outputs.method import run_units
-from .runner.checks import check_inputs
-from .runner.evidence import GRADE_BASE_M
-from .runner.network import Progress, worker_pool
+from .runner.progress import Progress
+
+# the audit itself (pipeline.api, the runner and the stages) is imported by the commands that
+# run it, so that --help and the light commands answer at once
+
+
+def audit(*args, **kwargs):
+    from .api import audit as run_audit
+
+    return run_audit(*args, **kwargs)
+
+
+def check_inputs(*args, **kwargs):
+    from .runner.checks import check_inputs as run_checks
+
+    return run_checks(*args, **kwargs)
+
+
+def worker_pool(cfg):
+    from .runner.engines import worker_pool as pool
+
+    return pool(cfg)
+
+
+def get_set(*args, **kwargs):
+    from .evaluate.criteria import get_set as get
+
+    return get(*args, **kwargs)
+
+
+def load_sets(*args, **kwargs):
+    from .evaluate.criteria import load_sets as load
+
+    return load(*args, **kwargs)
+
+
+def template():
+    from .evaluate.criteria import template as tpl
+
+    return tpl()
 
 DESCRIPTION = (
     "Screening audit of rural roads for stopping-sight-distance (SSD) shortfalls on crest and "
@@ -114,15 +149,20 @@ class _PlainProgress:
         self.stream = stream
 
     @contextlib.contextmanager
-    def stage(self, name: str, total: int | None = None):
+    def stage(self, name: str, total: float | None = None, unit: str = ""):
         t0 = time.perf_counter()
-        count = [0]
+        count = [0.0]
 
-        def tick(n: int = 1):
+        def tick(n: float = 1, what: str | None = None):
             count[0] += n
 
         yield tick
-        what = f", {count[0]} of {total}" if total is not None else ""
+        if total is None:
+            what = ""
+        elif unit:
+            what = f", {count[0]:,.1f} of {total:,.1f} {unit}"
+        else:
+            what = f", {count[0]:g} of {total:g} steps"
         print(f"{name}{what} ({time.perf_counter() - t0:.1f} s)", file=self.stream)
 
     def message(self, text: str) -> None:
@@ -130,27 +170,46 @@ class _PlainProgress:
 
 
 class _RichProgress:
-    """Progress bars on stderr, one per stage, with a per-road count and ETA."""
+    """Progress bars on stderr, one per stage: the amount done (km of road for the per-road
+    stages, steps for writing outputs, with the step at hand) and the time left, estimated from
+    the amount done so far (elapsed x left / done), shown from the first tick on."""
 
     def __init__(self, console):
-        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
-                                   TimeRemainingColumn)
+        from rich.progress import BarColumn, Progress, ProgressColumn, TextColumn, TimeElapsedColumn
+        from rich.text import Text
+
+        class Amount(ProgressColumn):
+            def render(self, task):
+                unit = task.fields.get("unit", "")
+                if unit:
+                    return Text(f"{task.completed:,.1f}/{task.total:,.1f} {unit}")
+                return Text(f"{task.completed:,.0f}/{task.total:,.0f}")
+
+        class TimeLeft(ProgressColumn):
+            def render(self, task):
+                if task.finished:
+                    return Text("done")
+                elapsed = task.elapsed or 0.0
+                if not task.completed or not task.total or elapsed <= 0:
+                    return Text("eta -:--:--")
+                left = int(round(elapsed * (task.total - task.completed) / task.completed))
+                return Text(f"eta {left // 3600}:{left // 60 % 60:02d}:{left % 60:02d}")
 
         self.console = console
-        self._cols = (TextColumn("{task.description:<28}"), BarColumn(), MofNCompleteColumn(),
-                      TimeElapsedColumn(), TextColumn("eta"), TimeRemainingColumn())
+        self._cols = (TextColumn("{task.description:<28}"), BarColumn(), Amount(), TimeElapsedColumn(), TimeLeft(),
+                      TextColumn("{task.fields[step]}"))
         self._progress_cls = Progress
 
     @contextlib.contextmanager
-    def stage(self, name: str, total: int | None = None):
+    def stage(self, name: str, total: float | None = None, unit: str = ""):
         with self._progress_cls(*self._cols, console=self.console, transient=False) as prog:
-            task = prog.add_task(name, total=total if total is not None else 1)
+            task = prog.add_task(name, total=total if total is not None else 1, unit=unit, step="")
 
-            def tick(n: int = 1):
-                prog.advance(task, n)
+            def tick(n: float = 1, what: str | None = None):
+                prog.update(task, advance=n, step=what or "")
 
             yield tick
-            prog.update(task, completed=total if total is not None else 1)
+            prog.update(task, completed=total if total is not None else 1, step="")
 
     def message(self, text: str) -> None:
         self.console.print(text)
@@ -221,8 +280,7 @@ def _run(args, roads: str, ground: str, overrides: dict, config: str | None) -> 
     with worker_pool(cfg) as pool:
         result = audit(roads, ground, cfg, progress=progress, work_dir=work_dir,
                        resume=getattr(args, "resume", False), pool=pool, command=sys.argv[1:])
-        with progress.stage("writing outputs"):
-            summary = result.write(out, pool)
+        summary = result.write(out, pool, progress=progress)
     shutil.rmtree(work_dir, ignore_errors=True)
     _print_summary(summary, out, args.quiet)
     failed = summary.get("output_failures") or []
@@ -270,6 +328,8 @@ def _validate(args) -> int:
           f"{info['elevation_unit']}")
     gp = info["grade_pct"]
     if gp:
+        from .runner.evidence import GRADE_BASE_M
+
         print(f"         grades over {length(GRADE_BASE_M)}: median {gp['p50']:.1f} %, 90th percentile "
               f"{gp['p90']:.1f} %, 99th {gp['p99']:.1f} %; {info['steep_pct']:.1f} % of the length steeper than "
               f"{cfg['artefacts.max_road_grade_pct']:g} %")

@@ -73,7 +73,8 @@ SPEC: dict[str, dict[str, tuple[Any, str]]] = {
     },
     "run": {
         "workers": (0, "processes for the per-road stages; 0 = every core, 1 = none (all in this process)"),
-        "chunk_km": (200.0, "road length handed to a worker at a time; memory grows with it, not the network (km)"),
+        "chunk_km": (200.0, "most road length handed to a worker at a time (chunks are balanced by cost, at least "
+                            "two per worker); memory grows with it, not the network (km)"),
         "engine": ("local", "'local' (this machine) or 'dask' (a Dask cluster, see run.scheduler)"),
         "scheduler": ("", "address of the Dask scheduler for the dask engine, e.g. 'tcp://10.0.0.5:8786'"),
     },

@@ -20,7 +20,7 @@ from ..core.config import Config
 from ..core.errors import InputError
 from ..core.units import metres_per
 from .crs import parse_crs
-from .files import check_file, id_strings, numeric_column, read_table, short_error
+from .files import GEOMETRY_TEXT_COLUMNS, check_file, id_strings, numeric_column, read_table, short_error
 from .roads import Roads
 
 DEM_SUFFIXES = {".tif", ".tiff", ".vrt", ".img", ".asc"}
@@ -220,6 +220,90 @@ def dem_cell_m(dem: DemGround, affine, y_mid: float) -> float:
     return float(np.sqrt(w * h) * factor)
 
 
+def dem_window(src, x: np.ndarray, y: np.ndarray, margin: int = 2):
+    """The window of cells around points ``x, y`` (nothing is read).
+
+    Parameters
+    ----------
+    src : rasterio.DatasetReader
+        The open DEM.
+    x, y : numpy.ndarray
+        Points in the DEM's CRS.
+    margin : int, optional
+        Cells added on every side of the points' bounding box.
+
+    Returns
+    -------
+    rasterio.windows.Window or None
+        The window, clipped to the raster; ``None`` when the points lie wholly outside it.
+    """
+    cols, rows = map_to_pixel(src.transform, x, y)
+    finite = np.isfinite(cols) & np.isfinite(rows)
+    if not finite.any():
+        return None
+    c0 = int(np.floor(np.nanmin(cols[finite]))) - margin
+    c1 = int(np.ceil(np.nanmax(cols[finite]))) + margin
+    r0 = int(np.floor(np.nanmin(rows[finite]))) - margin
+    r1 = int(np.ceil(np.nanmax(rows[finite]))) + margin
+    c0, r0 = max(c0, 0), max(r0, 0)
+    c1, r1 = min(c1, src.width), min(r1, src.height)
+    if c1 <= c0 or r1 <= r0:
+        return None
+    return Window(c0, r0, c1 - c0, r1 - r0)
+
+
+def read_dem_cells(dem: DemGround, src, win) -> np.ndarray:
+    """The DEM's cells in a window, in metres, nodata as NaN.
+
+    Parameters
+    ----------
+    dem : DemGround
+        The DEM (band, nodata, elevation unit).
+    src : rasterio.DatasetReader
+        The open DEM.
+    win : rasterio.windows.Window
+        The cells to read (inside the raster).
+
+    Returns
+    -------
+    numpy.ndarray
+        Elevations (m), float64.
+    """
+    data = src.read(dem.band, window=win, masked=True)
+    arr = np.asarray(data.filled(np.nan) if np.ma.isMaskedArray(data) else data, dtype=float)
+    if dem.nodata is not None and np.isfinite(dem.nodata):
+        arr[arr == dem.nodata] = np.nan
+    return arr * dem.metres_per_unit
+
+
+def dem_block_size(src, band: int = 1, default: int = 512) -> tuple[int, int]:
+    """The block (rows, columns) to read a DEM by: whole tiles of its own where it is tiled (a
+    cloud-optimised or tiled GeoTIFF; as many as make about ``default`` cells a side), else
+    ``default`` square.
+
+    Parameters
+    ----------
+    src : rasterio.DatasetReader
+        The open DEM.
+    band : int, optional
+        The band read.
+    default : int, optional
+        Block side for a striped or untiled raster (cells).
+
+    Returns
+    -------
+    tuple of int
+        Rows and columns of a block.
+    """
+    try:
+        h, w = src.block_shapes[band - 1]
+    except (IndexError, AttributeError):
+        return default, default
+    if h >= 16 and w >= 16 and (h < src.height or w < src.width):  # tiled: whole tiles, about default a side
+        return int(h * max(1, default // h)), int(w * max(1, default // w))
+    return default, default
+
+
 def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 2):
     """The DEM cells around points ``x, y``.
 
@@ -241,31 +325,21 @@ def read_dem_window(dem: DemGround, x: np.ndarray, y: np.ndarray, margin: int = 
         when the points lie wholly outside the raster.
     """
     with rasterio.open(dem.path) as src:
-        cols, rows = map_to_pixel(src.transform, x, y)
-        finite = np.isfinite(cols) & np.isfinite(rows)
-        if not finite.any():
+        win = dem_window(src, x, y, margin)
+        if win is None:
             return None, None
-        c0 = int(np.floor(np.nanmin(cols[finite]))) - margin
-        c1 = int(np.ceil(np.nanmax(cols[finite]))) + margin
-        r0 = int(np.floor(np.nanmin(rows[finite]))) - margin
-        r1 = int(np.ceil(np.nanmax(rows[finite]))) + margin
-        c0, r0 = max(c0, 0), max(r0, 0)
-        c1, r1 = min(c1, src.width), min(r1, src.height)
-        if c1 <= c0 or r1 <= r0:
-            return None, None
-        win = Window(c0, r0, c1 - c0, r1 - r0)
-        data = src.read(dem.band, window=win, masked=True)
-        arr = np.asarray(data.filled(np.nan) if np.ma.isMaskedArray(data) else data, dtype=float)
-        if dem.nodata is not None and np.isfinite(dem.nodata):
-            arr[arr == dem.nodata] = np.nan
-        return arr * dem.metres_per_unit, src.window_transform(win)
+        return read_dem_cells(dem, src, win), src.window_transform(win)
 
 
 def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointGround:
     """Every ground point, heights in metres, sorted and grouped by road id."""
-    frame, crs = read_table(path, what="ground", layer=cfg["ground.layer"],
-                            layer_setting="ground.layer (--ground-layer)",
-                            crs_text=cfg["ground.crs"], crs_setting="ground.crs (--ground-crs)")
+    fast = _read_point_columns(path, cfg)
+    if fast is not None:
+        frame, crs = fast
+    else:
+        frame, crs = read_table(path, what="ground", layer=cfg["ground.layer"],
+                                layer_setting="ground.layer (--ground-layer)",
+                                crs_text=cfg["ground.crs"], crs_setting="ground.crs (--ground-crs)")
     _check_point_columns(frame, path, cfg)
     codes, unique_ids = _point_id_codes(frame[cfg["roads.id_column"]])
     mode, cols = _point_columns(frame, path, cfg["ground.z_column"], factor)
@@ -284,6 +358,94 @@ def _read_points(path: Path, cfg: Config, roads: Roads, factor: float) -> PointG
     groups = {u: (int(a), int(b)) for u, a, b in zip(unique_ids, starts, stops)}
     return PointGround(path=path, crs=crs, mode=mode, rows=int(len(order)), arrays=arrays, groups=groups,
                        crs_assumed=crs_assumed)
+
+
+def _wanted_point_columns(names: list[str], cfg: Config) -> list[str] | None:
+    """The columns a ground-points table is read for (road id, height, then ``chainage_m`` or
+    ``x, y``), as named in the file; ``None`` when they are not all there plainly (the general
+    reader then reads the file and says what is wrong)."""
+    if len(set(names)) != len(names) or any(n != n.strip() or n.lower() in GEOMETRY_TEXT_COLUMNS for n in names):
+        return None
+    need = [cfg["roads.id_column"], cfg["ground.z_column"]]
+    if "chainage_m" in names:
+        need.append("chainage_m")
+    elif {"x", "y"} <= set(names):
+        need += ["x", "y"]
+    else:
+        return None
+    return need if set(need) <= set(names) and len(set(need)) == len(need) else None
+
+
+def _read_point_columns(path: Path, cfg: Config) -> tuple[pd.DataFrame, pyproj.CRS | None] | None:
+    """Ground points from a UTF-8 CSV or a plain Parquet file, read with pyarrow: only the
+    columns used, heights and coordinates straight to float.
+
+    This is the fast way for the common files; it gives ``None`` (and the general reader,
+    :func:`pipeline.ingest.files.read_table`, reads the file and words any error) for every
+    other case: a vector file, GeoParquet, another encoding, a point geometry instead of
+    columns, a cell that is not a number, an empty file.
+    """
+    suffix = path.suffix.lower()
+    try:
+        if suffix in (".csv", ".txt"):
+            frame = _arrow_csv(path, cfg)
+        elif suffix == ".parquet":
+            frame = _arrow_parquet(path, cfg)
+        else:
+            return None
+    except Exception:  # the general reader reads it again and says what is wrong
+        return None
+    if frame is None or len(frame) == 0:
+        return None
+    crs = parse_crs(cfg["ground.crs"], "ground.crs (--ground-crs)") if cfg["ground.crs"] else None
+    return frame, crs
+
+
+def _arrow_csv(path: Path, cfg: Config) -> pd.DataFrame | None:
+    """The point columns of a UTF-8 CSV (``None`` for another encoding or layout)."""
+    import pyarrow as pa
+    from pyarrow import csv as pacsv
+
+    with open(path, "rb") as fh:
+        head = fh.read(1 << 16)
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return None
+    bom = head.startswith(b"\xef\xbb\xbf")
+    text = head[3:] if bom else head
+    if b"\n" not in text:
+        return None
+    try:
+        header = text.split(b"\n", 1)[0].decode("utf-8").rstrip("\r")
+    except UnicodeDecodeError:
+        return None
+    import csv as stdcsv
+
+    names = next(stdcsv.reader([header]))
+    cols = _wanted_point_columns(names, cfg)
+    if cols is None:
+        return None
+    id_col = cfg["roads.id_column"]
+    types = {c: (pa.string() if c == id_col else pa.float64()) for c in cols}
+    table = pacsv.read_csv(
+        path,
+        read_options=pacsv.ReadOptions(encoding="utf-8-sig" if bom else "utf8"),
+        parse_options=pacsv.ParseOptions(),
+        convert_options=pacsv.ConvertOptions(include_columns=cols, column_types=types, null_values=[""],
+                                             strings_can_be_null=True, quoted_strings_can_be_null=True))
+    return table.to_pandas()
+
+
+def _arrow_parquet(path: Path, cfg: Config) -> pd.DataFrame | None:
+    """The point columns of a plain (not Geo-) Parquet file."""
+    import pyarrow.parquet as pq
+
+    schema = pq.read_schema(path)
+    if schema.metadata and b"geo" in schema.metadata:
+        return None
+    cols = _wanted_point_columns(list(schema.names), cfg)
+    if cols is None:
+        return None
+    return pq.read_table(path, columns=cols).to_pandas()
 
 
 def _check_point_columns(frame: pd.DataFrame, path: Path, cfg: Config) -> None:

@@ -17,14 +17,17 @@ from .crs import is_ballpark, parse_crs, transform_geometries, transformer, work
 from .features import Features, feature_chainages, read_features, structure_ranges
 from .files import (GEOMETRY_TEXT_COLUMNS, VECTOR_SUFFIXES, check_file, csv_encoding, file_sha256,
                     geometry_text_column, id_strings, numeric_column, read_table)
-from .ground import DEM_SUFFIXES, DemGround, PointGround, dem_cell_m, map_to_pixel, open_ground, read_dem_window
+from .ground import (DEM_SUFFIXES, DemGround, PointGround, dem_block_size, dem_cell_m, dem_window, map_to_pixel,
+                     open_ground, read_dem_cells, read_dem_window)
 from .roads import Roads, merge_parts, read_roads, unique_ids
 
 __all__ = [
     "DEM_SUFFIXES", "GEOMETRY_TEXT_COLUMNS", "VECTOR_SUFFIXES",
     "DemGround", "Features", "PointGround", "Roads",
-    "check_file", "csv_encoding", "dem_cell_m", "feature_chainages", "file_sha256", "geometry_text_column",
+    "check_file", "csv_encoding", "dem_block_size", "dem_cell_m", "dem_window", "feature_chainages", "file_sha256",
+    "geometry_text_column",
     "id_strings", "is_ballpark", "map_to_pixel", "merge_parts", "numeric_column", "open_ground", "parse_crs",
-    "read_dem_window", "read_features", "read_roads", "read_table", "structure_ranges", "transform_geometries",
+    "read_dem_cells", "read_dem_window", "read_features", "read_roads", "read_table", "structure_ranges",
+    "transform_geometries",
     "transformer", "unique_ids", "working_crs", "working_crs_key",
 ]

@@ -39,7 +39,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy.signal import savgol_coeffs, savgol_filter
 
 from ..core.spec import section_defaults
 from ..core.estimators import mad_sigma
@@ -98,6 +97,8 @@ def heading_curvature(line, step_m: float, smooth_m: float, poly=None
     h = ch[1] - ch[0] if n > 1 else step_m
     win = int(round(smooth_m / h)) | 1
     if win >= 5 and n > win:
+        from scipy.signal import savgol_filter  # scipy.signal is slow to import: only where used
+
         smooth = savgol_filter(head, win, 2)
         curv = savgol_filter(head, win, 2, deriv=1, delta=h)
         noise = mad_sigma(head - smooth)
@@ -129,6 +130,8 @@ def derivative_noise_gain(window: int, step_m: float) -> float:
     ----------
     Savitzky, A. and Golay, M. J. E. (1964). *Analytical Chemistry* 36(8), 1627-1639.
     """
+    from scipy.signal import savgol_coeffs
+
     return float(np.sqrt(np.sum(savgol_coeffs(window, 2, deriv=1, delta=step_m) ** 2)))
 
 

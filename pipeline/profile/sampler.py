@@ -3,11 +3,13 @@
 
 from __future__ import annotations
 
+import contextlib
+
 import numpy as np
 
 from ..core.config import Config
-from ..ingest.readers import (DemGround, PointGround, dem_cell_m, feature_chainages, is_ballpark, read_dem_window,
-                              structure_ranges, transformer)
+from ..ingest.readers import (DemGround, PointGround, dem_block_size, dem_cell_m, dem_window, feature_chainages,
+                              is_ballpark, read_dem_cells, structure_ranges, transformer)
 from .corridor import carriageway_offsets, cell_crossing_filter, resolution_length_m
 from .stations import MISSING, Polyline, bilinear, point_spacing_m, regularise
 
@@ -38,6 +40,7 @@ class GroundSampler:
         self.points_dropped = 0
         self.points_used = 0
         self.notes: list[str] = []
+        self._blocks = DemBlocks(ground) if isinstance(ground, DemGround) else None
 
     def _to_ground(self, key: str, probe_xy):
         if key not in self._tr:
@@ -188,17 +191,17 @@ class GroundSampler:
         nx, ny = -hy / norm, hx / norm  # left-hand normal
         half = float(cfg["profile.corridor_half_width_m"])
         gx, gy = (np.asarray(v) for v in tr.transform(sx, sy))
-        arr, aff = read_dem_window(self.ground, gx, gy, margin=2 + int(half))
         extra = {"cell_m": None, "spacing_m": None, "offset_m": np.zeros(n), "filter_m": np.zeros(n)}
-        if arr is None:
-            return np.full(n, np.nan), extra, []
-        cell = dem_cell_m(self.ground, aff, float(np.nanmean(gy)))
-        extra["cell_m"] = cell
-        if cell <= cfg["profile.corridor_max_cell_m"] and half > 0:
-            return self._carriageway_profile(tr, arr, aff, cell, half, (sx, sy), (nx, ny), extra)
-        return self._filtered_profile(poly, tr, arr, aff, cell, stations, extra)
+        with self._blocks.opened() as dem:
+            if dem_window(dem.src, gx, gy, margin=2 + int(half)) is None:  # the road lies off the DEM
+                return np.full(n, np.nan), extra, []
+            cell = dem_cell_m(self.ground, dem.src.transform, float(np.nanmean(gy)))
+            extra["cell_m"] = cell
+            if cell <= cfg["profile.corridor_max_cell_m"] and half > 0:
+                return self._carriageway_profile(tr, dem.bilinear, cell, half, (sx, sy), (nx, ny), extra)
+            return self._filtered_profile(poly, tr, dem.bilinear, cell, stations, extra)
 
-    def _carriageway_profile(self, tr, arr, aff, cell: float, half: float, s_xy, n_xy, extra: dict):
+    def _carriageway_profile(self, tr, at, cell: float, half: float, s_xy, n_xy, extra: dict):
         """On a fine DEM: the profile read on the carriageway found across the corridor
         (:func:`carriageway_offsets`), as :func:`road_surface_elevation` of a band 1.5 m either
         side of its centre; returns ``(z, extra, notes)``."""
@@ -209,14 +212,14 @@ class GroundSampler:
         px = sx[:, None] + offs[None, :] * nx[:, None]
         py = sy[:, None] + offs[None, :] * ny[:, None]
         qx, qy = (np.asarray(v).reshape(px.shape) for v in tr.transform(px.ravel(), py.ravel()))
-        section = bilinear(arr, aff, qx, qy)
+        section = at(qx, qy)
         off = carriageway_offsets(section, offs, self.cfg["profile.step_m"], self.cfg["profile.carriageway_width_m"])
         extra["offset_m"] = off
         band = np.arange(-1.5, 1.5 + do / 2, do)
         bo = off[:, None] + band[None, :]
         ox, oy = (np.asarray(v).reshape(bo.shape) for v in
                   tr.transform((sx[:, None] + bo * nx[:, None]).ravel(), (sy[:, None] + bo * ny[:, None]).ravel()))
-        z = road_surface_elevation(bilinear(arr, aff, ox, oy))
+        z = road_surface_elevation(at(ox, oy))
         big = np.abs(off) > 1.0
         if big.any():
             notes.append(("profile read on the carriageway, off the centreline", None, None,
@@ -226,7 +229,7 @@ class GroundSampler:
                           f"(offsets per station in profiles.parquet, ground_offset_m)"))
         return z, extra, notes
 
-    def _filtered_profile(self, poly: Polyline, tr, arr, aff, cell: float, stations: np.ndarray, extra: dict):
+    def _filtered_profile(self, poly: Polyline, tr, at, cell: float, stations: np.ndarray, extra: dict):
         """On a coarse DEM: the centreline's samples, every quarter cell, filtered against the
         cell-crossing ripple (:func:`cell_crossing_filter`); returns ``(z, extra, notes)``."""
         step = self.cfg["profile.step_m"]
@@ -234,7 +237,7 @@ class GroundSampler:
         fine = np.arange(0.0, stations[-1] + h / 2, h) if len(stations) else stations
         fx, fy = poly.at(fine)
         qx, qy = (np.asarray(v) for v in tr.transform(fx, fy))
-        zf = bilinear(arr, aff, qx, qy)
+        zf = at(qx, qy)
         heading = np.arctan2(np.gradient(qy), np.gradient(qx))
         zf, box = cell_crossing_filter(fine, zf, heading, cell)
         z = np.interp(stations, fine, zf)
@@ -245,6 +248,105 @@ class GroundSampler:
                   f"(median) along the road, and no feature shorter than "
                   f"{resolution_length_m(cell, None, step, float(np.median(box))):.0f} m is resolved")]
         return z, extra, notes
+
+
+class DemBlocks:
+    """A DEM read block by block, only the blocks that the points asked for touch.
+
+    A road's corridor crosses a few blocks of the raster; its bounding box may cover thousands
+    (a long diagonal road on a 1 m DEM). The blocks are the raster's own tiles where it is
+    tiled (:func:`pipeline.ingest.ground.dem_block_size`), each read with a one-cell rim so that
+    interpolation near a block's edge sees the same four cells as on the whole raster; the
+    last blocks read are kept for the next road (``keep`` of them).
+
+    Parameters
+    ----------
+    ground : DemGround
+        The DEM.
+    keep : int, optional
+        Blocks kept in memory between reads (each about 2 MB at 512 x 512 cells).
+    """
+
+    def __init__(self, ground: DemGround, keep: int = 48):
+        self.ground = ground
+        self.keep = keep
+        self.src = None
+        self._cache: dict = {}
+
+    @contextlib.contextmanager
+    def opened(self):
+        """The DEM open for the reads of one road.
+
+        Returns
+        -------
+        contextlib.AbstractContextManager
+            Yields this object, with ``src`` the open dataset.
+        """
+        import rasterio
+
+        with rasterio.open(self.ground.path) as src:
+            self.src = src
+            try:
+                yield self
+            finally:
+                self.src = None
+
+    def bilinear(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        """Bilinear interpolation of the DEM at map coordinates (see
+        :func:`pipeline.profile.stations.bilinear`), reading only the blocks the points are in.
+
+        Parameters
+        ----------
+        x, y : numpy.ndarray
+            Map coordinates in the DEM's CRS (any shape, the same for both).
+
+        Returns
+        -------
+        numpy.ndarray
+            Elevations (m), shaped as ``x``; NaN outside the raster or next to nodata.
+        """
+        src = self.src
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        shape = x.shape
+        x, y = x.ravel(), y.ravel()
+        out = np.full(x.shape, np.nan)
+        inv = ~src.transform
+        col = inv.a * x + inv.b * y + inv.c
+        row = inv.d * x + inv.e * y + inv.f
+        inside = (col >= 0) & (col <= src.width) & (row >= 0) & (row <= src.height)
+        if not inside.any():
+            return out.reshape(shape)
+        bh, bw = dem_block_size(src, self.ground.band)
+        idx = np.flatnonzero(inside)
+        br = np.minimum(np.floor(row[idx] / bh).astype(np.int64), (src.height - 1) // bh)
+        bc = np.minimum(np.floor(col[idx] / bw).astype(np.int64), (src.width - 1) // bw)
+        key = br * (src.width // bw + 2) + bc
+        order = np.argsort(key, kind="stable")
+        keys, starts = np.unique(key[order], return_index=True)
+        for j, start in enumerate(starts):
+            stop = starts[j + 1] if j + 1 < len(starts) else len(order)
+            pick = idx[order[start:stop]]
+            arr, aff = self._block(int(br[order[start]]), int(bc[order[start]]), bh, bw)
+            out[pick] = bilinear(arr, aff, x[pick], y[pick])
+        return out.reshape(shape)
+
+    def _block(self, br: int, bc: int, bh: int, bw: int):
+        """Block (``br``, ``bc``) with a one-cell rim, clipped to the raster: cells (m) and transform."""
+        k = (br, bc, bh, bw)
+        hit = self._cache.pop(k, None)
+        if hit is None:
+            src = self.src
+            r0, c0 = max(br * bh - 1, 0), max(bc * bw - 1, 0)
+            r1, c1 = min((br + 1) * bh + 1, src.height), min((bc + 1) * bw + 1, src.width)
+            from rasterio.windows import Window
+
+            win = Window(c0, r0, c1 - c0, r1 - r0)
+            hit = (read_dem_cells(self.ground, src, win), src.window_transform(win))
+        self._cache[k] = hit  # the most recent last
+        while len(self._cache) > self.keep:
+            self._cache.pop(next(iter(self._cache)))
+        return hit
 
 
 def road_surface_elevation(band_z: np.ndarray, quantile: float = 0.25) -> np.ndarray:

@@ -13,6 +13,14 @@
 - :mod:`.checks`      checking the inputs without running (``sightaudit validate``)
 """
 
-from .network import accounting, run_network, run_summary
-
 __all__ = ["accounting", "run_network", "run_summary"]
+
+
+def __getattr__(name: str):
+    """The orchestration's names, imported on first use (so that importing a light module of
+    this package, such as :mod:`.progress`, does not import every stage)."""
+    if name in __all__:
+        from . import network
+
+        return getattr(network, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

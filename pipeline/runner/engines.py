@@ -4,6 +4,11 @@
 cores by default), or in this process when there is one chunk or one worker; each worker writes
 its chunk straight into the work folder. ``run.engine = "dask"`` sends the chunks to the Dask
 scheduler at ``run.scheduler``; the workers return each chunk's tables, written here.
+
+The pool's processes are started as soon as the pool is made (each imports the per-road stages
+at once), so that they start while this process reads the inputs. The costliest chunks are
+handed out first, so the last to finish are short ones. Workers report each road done through
+a queue, so progress moves road by road, in km, rather than chunk by chunk.
 """
 
 from __future__ import annotations
@@ -11,7 +16,8 @@ from __future__ import annotations
 import contextlib
 import multiprocessing
 import os
-from concurrent.futures import ProcessPoolExecutor, as_completed
+import queue as queue_module
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from pathlib import Path
 
 import pandas as pd
@@ -19,10 +25,24 @@ import pandas as pd
 from ..core.config import Config
 from ..core.errors import InputError
 from ..ingest.readers import PointGround
-from .roadwork import Job, process_chunk
+from .roadwork import Job, process_chunk, road_km
 from .workfolder import WorkFolder, write_chunk
 
 BLAS_THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+_ROAD_QUEUE = None  # in a worker of the local pool: where each road done is reported
+
+
+def _init_worker(road_queue) -> None:
+    """Worker start-up (which imports this module, and with it the per-road stages): keep the
+    queue that progress goes to."""
+    global _ROAD_QUEUE
+    _ROAD_QUEUE = road_queue
+
+
+def _warm_up() -> int:
+    """A no-op task: handing one to each worker starts the processes at once."""
+    return os.getpid()
 
 
 def worker_count(cfg: Config) -> int:
@@ -48,7 +68,10 @@ def worker_pool(cfg: Config):
 
     Workers are started with 'spawn' (clean processes, no inherited threads or open files)
     and one BLAS thread each: the workers already fill the cores, and the matrices are small.
-    The environment is set for the pool's whole life because it starts processes lazily.
+    Every process is started at once (one no-op task each), so that they start up while this
+    process reads the inputs; the environment is set for the pool's whole life (any process
+    it starts inherits it). Each worker reports the roads it finishes on the pool's
+    ``road_queue`` (for the progress display).
 
     Parameters
     ----------
@@ -66,8 +89,14 @@ def worker_pool(cfg: Config):
         return
     saved = {k: os.environ.get(k) for k in BLAS_THREAD_VARS + ("MPLBACKEND",)}
     os.environ.update({k: "1" for k in BLAS_THREAD_VARS} | {"MPLBACKEND": "Agg"})
+    ctx = multiprocessing.get_context("spawn")
+    road_queue = ctx.Queue()
     try:
-        with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn")) as pool:
+        with ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker,
+                                 initargs=(road_queue,)) as pool:
+            pool.road_queue = road_queue
+            for _ in range(workers):  # start every process now, while the inputs are read
+                pool.submit(_warm_up)
             yield pool
     finally:
         for k, v in saved.items():
@@ -75,10 +104,11 @@ def worker_pool(cfg: Config):
                 os.environ.pop(k, None)
             else:
                 os.environ[k] = v
+        road_queue.close()
 
 
 def run_chunks(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], net_junctions: dict,
-               work: WorkFolder, cfg: Config, tick, pool=None) -> None:
+               work: WorkFolder, cfg: Config, tick, pool=None, costs=None) -> None:
     """Run the unfinished chunks with the configured engine, writing each into the work folder.
 
     Parameters
@@ -98,9 +128,12 @@ def run_chunks(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], net
     cfg : Config
         The run's settings (``run.engine``, ``run.workers``, ``run.scheduler``).
     tick : callable
-        Called with the number of roads each time a chunk is done.
+        Called with km of road done (road by road where the engine can tell, else chunk by chunk).
     pool : concurrent.futures.Executor, optional
         A pool to run in (otherwise one is made for the call when useful).
+    costs : sequence of float, optional
+        Each chunk's estimated cost; the costliest are handed out first (by number of roads
+        when not given).
 
     Returns
     -------
@@ -113,38 +146,77 @@ def run_chunks(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], net
         rows = table.iloc[chunks[k]]
         return rows, {r: net_junctions[r] for r in rows["road_id"] if r in net_junctions}
 
+    costs = [len(c) for c in chunks] if costs is None else list(costs)
+    order = sorted(todo, key=lambda k: (-costs[k], k))  # costliest first
     if cfg["run.engine"] == "dask":
-        _run_dask(job, todo, rows_of, work, cfg, tick)
+        _run_dask(job, order, rows_of, work, cfg, tick)
         return
     if len(todo) > 1:
         if pool is not None:
-            _submit_all(pool, job, todo, rows_of, work, tick)
+            _submit_all(pool, job, order, rows_of, work, tick)
             return
         with worker_pool(cfg) as own:
             if own is not None:
-                _submit_all(own, job, todo, rows_of, work, tick)
+                _submit_all(own, job, order, rows_of, work, tick)
                 return
     for k in todo:  # one chunk, or one worker: in this process
         rows, nj = rows_of(k)
-        work.write(k, process_chunk(job, rows, nj))
-        tick(len(rows))
+        work.write(k, process_chunk(job, rows, nj, on_road=tick))
+
+
+def _chunk_km(rows: pd.DataFrame) -> float:
+    """The km of road in a chunk, as the progress display counts them."""
+    return float(sum(road_km(r) for _, r in rows.iterrows()))
 
 
 def _run_chunk_to_folder(job: Job, rows: pd.DataFrame, net_junctions: dict, folder: str, k: int) -> dict:
-    """Worker side of the local engine: run a chunk and write it (the worker shares the disk)."""
-    write_chunk(Path(folder), k, process_chunk(job, rows, net_junctions))
+    """Worker side of the local engine: run a chunk and write it (the worker shares the disk);
+    each road done is reported on the pool's queue, when it has one."""
+    q = _ROAD_QUEUE
+    on_road = (lambda km: q.put((k, km))) if q is not None else None
+    write_chunk(Path(folder), k, process_chunk(job, rows, net_junctions, on_road=on_road))
     return {"k": k, "n": len(rows)}
 
 
-def _submit_all(pool, job: Job, todo: list[int], rows_of, work: WorkFolder, tick) -> None:
-    """Hand each chunk (with only its own ground points) to the pool; tick as they finish."""
-    futures = {}
-    for k in todo:
+def _submit_all(pool, job: Job, order: list[int], rows_of, work: WorkFolder, tick) -> None:
+    """Hand each chunk (with only its own ground points) to the pool, in the order given; tick
+    road by road as the workers report, and make up each chunk's km when it finishes."""
+    road_queue = getattr(pool, "road_queue", None)
+    futures, total, done = {}, {}, {}
+    _drain(road_queue)  # anything left from an earlier run in the same pool
+    for k in order:
         rows, nj = rows_of(k)
-        futures[pool.submit(_run_chunk_to_folder, _job_for(job, rows), rows, nj, str(work.path), k)] = len(rows)
-    for f in as_completed(futures):
-        f.result()
-        tick(futures[f])
+        total[k], done[k] = _chunk_km(rows), 0.0
+        futures[pool.submit(_run_chunk_to_folder, _job_for(job, rows), rows, nj, str(work.path), k)] = k
+
+    def credit(k, km):
+        add = min(km, total[k] - done[k])
+        if add > 0:
+            done[k] += add
+            tick(add)
+
+    pending = set(futures)
+    while pending:
+        finished, pending = wait(pending, timeout=0.2, return_when=FIRST_COMPLETED)
+        while road_queue is not None:
+            try:
+                k, km = road_queue.get_nowait()
+            except queue_module.Empty:
+                break
+            if k in total:
+                credit(k, km)
+        for f in finished:
+            f.result()
+            k = futures[f]
+            credit(k, total[k] - done[k])
+
+
+def _drain(road_queue) -> None:
+    while road_queue is not None:
+        try:
+            road_queue.get_nowait()
+        except queue_module.Empty:
+            return
 
 
 def _job_for(job: Job, rows: pd.DataFrame) -> Job:
@@ -170,8 +242,8 @@ def _run_dask(job: Job, todo: list[int], rows_of, work: WorkFolder, cfg: Config,
         for k in todo:
             rows, nj = rows_of(k)
             fut = client.submit(process_chunk, _job_for(job, rows), rows, nj, pure=False)
-            futures[fut] = (k, len(rows))
+            futures[fut] = (k, _chunk_km(rows))
         for fut in dask_completed(list(futures)):
-            k, n = futures[fut]
+            k, km = futures[fut]
             work.write(k, fut.result())
-            tick(n)
+            tick(km)

@@ -1,8 +1,9 @@
 """Run the audit over a road network, in chunks, and account for every road.
 
 The per-road stages (:mod:`pipeline.runner.roadwork`) never depend on another road, so the
-network is cut into chunks of roads (``run.chunk_km`` of road each) that run one after the
-other in this process, in a pool of processes (``run.workers``, default all cores) or on a
+network is cut into chunks of roads of about equal cost (at least two per worker, at most
+``run.chunk_km`` of road each; :func:`pipeline.runner.chunks.chunk_rows`) that run one after
+the other in this process, in a pool of processes (``run.workers``, default all cores) or on a
 Dask cluster (``run.engine = "dask"``). Each chunk's results are written to Parquet files in a
 work folder as soon as they exist, so memory holds one chunk per worker, not the network;
 DuckDB then judges the curves and builds the inventory straight from those files. A run that
@@ -39,7 +40,7 @@ from ..evaluate.judge import evaluate
 from ..evaluate.quality import data_quality
 from ..ingest.readers import PointGround, Roads, file_sha256, open_ground, read_features, read_roads
 from ..outputs.export import CAUTION_TEXT as CAUTION
-from .chunks import chunk_rows
+from .chunks import chunk_layout_key, chunk_rows, road_costs
 from .engines import run_chunks, worker_count, worker_pool
 from .evidence import examine, screen_speeds, speed_notes
 from .junctions import network_junction_points
@@ -101,13 +102,17 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
     timings["ingest"] = time.perf_counter() - t0
 
     owner, work_dir = _work_dir(work_dir)
-    work = WorkFolder(Path(work_dir), run_key(roads_path, ground_path, cfg), resume)
     table = inputs.roads.table
-    chunks = chunk_rows(table, cfg["run.chunk_km"])
+    cost = road_costs(table, cfg["profile.step_m"],
+                      inputs.ground.groups if isinstance(inputs.ground, PointGround) else None)
+    chunks = chunk_rows(table, cfg["run.chunk_km"], _pool_width(cfg, pool), cost)
+    key = run_key(roads_path, ground_path, cfg) + chunk_layout_key(table, chunks)
+    work = WorkFolder(Path(work_dir), key, resume)
     todo = [k for k in range(len(chunks)) if not work.done(k)]
     job = Job(cfg=cfg, cset=cset, work_crs=inputs.roads.work_crs, source_crs=inputs.roads.source_crs,
               ground=inputs.ground, structures=inputs.structures, junctions=inputs.junctions)
-    wall = _run_stages(job, table, chunks, todo, net_junctions, work, cfg, progress, pool)
+    costs = [float(cost[c].sum()) for c in chunks]
+    wall = _run_stages(job, table, chunks, todo, net_junctions, work, cfg, progress, pool, costs)
     points_used, points_dropped, sampler_notes = _chunk_reports(work, len(chunks), timings)
     timings["per-road stages, wall clock"] = wall
     ground_info = _ground_info(inputs, points_used, points_dropped)
@@ -156,15 +161,22 @@ def _work_dir(work_dir: str | Path | None) -> tuple[str | None, str | Path]:
     return owner, Path(owner) / "work"
 
 
+def _pool_width(cfg: Config, pool) -> int:
+    """How many workers the chunks are shared among: the pool's, else ``run.workers``."""
+    n = getattr(pool, "_max_workers", None)
+    return int(n) if isinstance(n, int) and n > 0 else worker_count(cfg)
+
+
 def _run_stages(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], net_junctions: dict,
-                work: WorkFolder, cfg: Config, progress: Progress, pool) -> float:
-    """The per-road stages over the unfinished chunks (the finished ones count as done at once);
-    returns the wall-clock seconds."""
+                work: WorkFolder, cfg: Config, progress: Progress, pool, costs: list[float]) -> float:
+    """The per-road stages over the unfinished chunks (the finished ones count as done at once),
+    counted in km of road; returns the wall-clock seconds."""
     t0 = time.perf_counter()
-    with progress.stage("profiles, curves, sight", total=len(table)) as tick:
+    km = (pd.to_numeric(table["length_m"], errors="coerce").clip(lower=0).fillna(0.0) / 1000.0).to_numpy()
+    with progress.stage("profiles, curves, sight", total=float(km.sum()), unit="km") as tick:
         for k in set(range(len(chunks))) - set(todo):
-            tick(len(chunks[k]))
-        run_chunks(job, table, chunks, todo, net_junctions, work, cfg, tick, pool)
+            tick(float(km[chunks[k]].sum()))
+        run_chunks(job, table, chunks, todo, net_junctions, work, cfg, tick, pool, costs)
     return time.perf_counter() - t0
 
 

@@ -169,7 +169,24 @@ def _spacing(o: RoadOutcome) -> float:
     return float(v) if v is not None else np.nan
 
 
-def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict) -> dict:
+def road_km(row: pd.Series) -> float:
+    """A road's length in km (0 where unknown), as counted by the progress display.
+
+    Parameters
+    ----------
+    row : pandas.Series
+        The road's row of the roads table (``length_m``).
+
+    Returns
+    -------
+    float
+        Length (km).
+    """
+    v = float(row["length_m"]) if row["length_m"] is not None else 0.0
+    return v / 1000.0 if np.isfinite(v) and v > 0 else 0.0
+
+
+def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict, on_road=None) -> dict:
     """Run every per-road stage for a chunk of roads.
 
     Parameters
@@ -180,6 +197,9 @@ def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict) -> dict:
         The chunk's rows of the roads table.
     net_junctions : dict
         Junctions found in the network, by road id: lists of (chainage in m, label).
+    on_road : callable, optional
+        Called with each road's length (km; 0 where unknown) as soon as the road is done, for
+        the progress display.
 
     Returns
     -------
@@ -199,6 +219,8 @@ def process_chunk(job: Job, rows: pd.DataFrame, net_junctions: dict) -> dict:
         o = process_road(row, sampler, job.cfg, back.get(row["work_key"]), job.cset,
                          net_junctions.get(row["road_id"], []))
         outcomes.append(o)
+        if on_road is not None:
+            on_road(road_km(row))
     seconds: dict[str, float] = {}
     for o in outcomes:
         for stage, secs in o.seconds.items():
