@@ -196,3 +196,28 @@ def test_geopackage_layers_carry_default_styles(demo_out):
         ET.fromstring(sld.encode("utf-8"))
     for colour in SEVERITY_COLOURS.values():
         assert colour in styles["deficiencies"] and colour in styles["hidden_hazards"]
+
+
+def test_gpkg_sight_limiting_points_sit_on_the_crests(demo_out):
+    """Layer sight_limiting_points: one point per crest row of deficiencies.csv, at its curve's
+    high point (turn_m in curves.csv) on the road's centreline (distance to the line checked with
+    shapely, a reference library; a point on a line is within rounding of it)."""
+    import geopandas as gpd
+    import pandas as pd
+    from shapely.ops import substring
+
+    pts = gpd.read_file(demo_out / "audit.gpkg", layer="sight_limiting_points")
+    defs = pd.read_csv(demo_out / "deficiencies.csv")
+    crest = defs[defs["kind"] == "crest"]
+    assert len(crest) > 0 and len(pts) == len(crest)
+    assert sorted(pts["rank"]) == sorted(crest["rank"])
+    curves = pd.read_csv(demo_out / "curves.csv").set_index(["road_id", "curve_no"])
+    roads = gpd.read_file(demo_out / "audit.gpkg", layer="roads").set_index("road_id")
+    for p in pts.itertuples():
+        turn = curves.loc[(p.road_id, int(p.curve_no)), "turn_m"]
+        assert abs(p.at_m - turn) < 0.05
+        line = roads.at[p.road_id, "geometry"]
+        assert p.geometry.distance(line) < 0.05, (p.road_id, p.curve_no)
+        # and at that chainage along the line (the sample is in a metric projected CRS)
+        if line.geom_type == "LineString":
+            assert p.geometry.distance(substring(line, turn, turn).centroid) < 1.0

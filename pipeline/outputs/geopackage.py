@@ -47,7 +47,7 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
     -------
     None
         Layers ``roads``, ``curves``, ``deficiencies`` and ``horizontal_curves`` (lines),
-        ``pvis`` and ``hidden_hazards`` (points), and where the 3D sight found something to clear
+        ``pvis``, ``hidden_hazards`` and ``sight_limiting_points`` (points), and where the 3D sight found something to clear
         ``sight_clearance`` (polygons) and ``sight_blocking_points`` (points).
     """
     roads = result.roads
@@ -68,7 +68,8 @@ def write_gpkg(path: Path, result, curves: pd.DataFrame, deficiencies: pd.DataFr
         points = [shapely.points(shapely.get_coordinates(g)[0]) for g in cut(frame, "at_m", "at_m", 0.0)]
         gpd.GeoDataFrame(conv(frame), geometry=points, crs=crs).to_file(path, layer=layer, driver="GPKG",
                                                                       engine="pyogrio")
-    layers = ["roads", "curves", "deficiencies", "horizontal_curves", "pvis", "hidden_hazards"]
+    layers = ["roads", "curves", "deficiencies", "horizontal_curves"] + [layer for layer, _ in
+                                                                          _point_layers(curves, deficiencies)]
     layers += _clearance_layers(path, result, deficiencies, crs, conv)
     store_styles(path, layers)
 
@@ -106,14 +107,22 @@ def _clearance_layers(path: Path, result, deficiencies: pd.DataFrame, crs, conv)
 
 
 def _point_layers(curves: pd.DataFrame, deficiencies: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
-    """The point layers: each vertical curve's PVI (``pvis``), and each hazard hidden beyond a
-    crest where a driver first meets it (``hidden_hazards``); ``at_m`` is the point's chainage."""
+    """The point layers: each vertical curve's PVI (``pvis``), each hazard hidden beyond a crest
+    where a driver first meets it (``hidden_hazards``), and the crest's high point that limits the
+    sight of each deficient or undetermined crest stretch (``sight_limiting_points``; a sag has no
+    one such point, its headlight reach moving with the car, and roadside limits are in
+    ``sight_blocking_points``); ``at_m`` is the point's chainage."""
     pvis = curves[["road_id", "curve_no", "kind", "pvi_m", "a_pct", "length_m", "k", "verdict",
                    "confidence"]].assign(at_m=curves["pvi_m"])
     hidden = deficiencies[(deficiencies["hidden_hazard"] != "none") & deficiencies["hazard_chainage_m"].notna()]
     hazards = hidden[["rank", "road_id", "curve_no", "direction", "hidden_hazard", "hazard_detail",
                       "hazard_chainage_m", "severity", "verdict"]].assign(at_m=hidden["hazard_chainage_m"])
-    return [("pvis", pvis), ("hidden_hazards", hazards)]
+    crest = deficiencies[deficiencies["kind"] == "crest"][["rank", "road_id", "curve_no", "direction", "severity",
+                                                            "verdict", "sight_available_m", "ssd_required_m"]]
+    tops = curves[["road_id", "curve_no", "turn_m", "turn_elev_m"]]
+    limits = crest.merge(tops, on=["road_id", "curve_no"], how="inner")
+    limits = limits[limits["turn_m"].notna()].assign(limit_kind="crest", at_m=lambda f: f["turn_m"])
+    return [("pvis", pvis), ("hidden_hazards", hazards), ("sight_limiting_points", limits.reset_index(drop=True))]
 
 
 def _centreline_cutter(roads, t: pd.DataFrame):

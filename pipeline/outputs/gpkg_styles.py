@@ -60,18 +60,19 @@ def layer_sld(layer: str) -> str:
     ----------
     layer : str
         ``roads``, ``curves``, ``horizontal_curves``, ``deficiencies``, ``pvis``,
-        ``hidden_hazards``, ``sight_clearance`` or ``sight_blocking_points``.
+        ``hidden_hazards``, ``sight_limiting_points``, ``sight_clearance`` or
+        ``sight_blocking_points``.
 
     Returns
     -------
     str
         An SLD 1.1 document: grey roads, blue vertical curves, green horizontal curves, PVIs as
-        small blue points, deficient stretches and hidden hazards by severity (the worst the
+        small blue points, deficient stretches, hidden hazards and the crests limiting sight by severity (the worst the
         darkest and widest), the areas to clear for the 3D sight half-transparent orange and the
         blocking points small and brown.
     """
     widths = {"minor": 3.0, "moderate": 4.5, "severe": 6.0}
-    if layer in ("deficiencies", "hidden_hazards"):
+    if layer in ("deficiencies", "hidden_hazards", "sight_limiting_points"):
         make = (lambda c, s: _line(c, widths[s])) if layer == "deficiencies" else (lambda c, s: _point(c, 7 + widths[s]))
         rules = "".join(_rule(sev, make(colour, sev), "severity", sev) for sev, colour in SEVERITY_COLOURS.items())
     else:

@@ -457,9 +457,12 @@ def _brief_section(result, summary: dict, units, paged: set, anchors: dict) -> l
     if len(sites):
         items = []
         for _, r in sites.iterrows():
-            rid, cno = r["road_id"], int(r["curve_no"])
-            rank = (f"<a href='#{curve_anchor(rid, cno)}'>Rank {int(r['rank'])}</a>" if (rid, cno) in paged
-                    else f"Rank {int(r['rank'])}")
+            rid, cno = r["road_id"], (int(r["curve_no"]) if pd.notna(r["curve_no"]) else None)
+            if cno is None:  # a roadside row of the 3D sight lines: its entry in the roadside section
+                rank = f"<a href='#roadside-{int(r['rank'])}'>Rank {int(r['rank'])}</a>"
+            else:
+                rank = (f"<a href='#{curve_anchor(rid, cno)}'>Rank {int(r['rank'])}</a>" if (rid, cno) in paged
+                        else f"Rank {int(r['rank'])}")
             road = f" <a class='small' href='#{anchors[rid]}'>(road {_e(rid)})</a>" if rid in anchors else ""
             items.append(f"<li><b>{rank}</b>: {_e(site_text(r))} {_e(_where_text(r, units))}{road}</li>")
         parts.append(f"<ol class='sites'>{''.join(items)}</ol>")

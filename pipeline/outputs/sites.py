@@ -38,7 +38,9 @@ def worst_sites(defs: pd.DataFrame, n: int = 5) -> pd.DataFrame:
     if not len(defs) or not {"rank", "road_id", "curve_no"} <= set(defs.columns):
         return defs.iloc[0:0]
     d = defs[defs["verdict"] == "deficient"] if "verdict" in defs else defs
-    return d.sort_values("rank").drop_duplicates(["road_id", "curve_no"]).head(n)
+    # one site per curve; roadside rows (no vertical curve) one per horizontal curve
+    key = ["road_id", "curve_no"] + [c for c in ("kind", "hcurve_no") if c in d.columns]
+    return d.sort_values("rank").drop_duplicates(key).head(n)
 
 
 def worst_sites_heading(n: int) -> str:
