@@ -155,7 +155,7 @@ def test_road_sections_list_curves_deficiencies_notes_and_profile(demo_out, html
         if len(rows):
             table = sec.split("<h4>Deficient stretches</h4>", 1)[1].split("</table>", 1)[0]
             assert table.count("<tr>") - 1 == len(rows)
-            for cno in rows["curve_no"].unique():
+            for cno in rows["curve_no"].dropna().unique():  # roadside rows have no vertical curve
                 if curve_anchor(rid, cno) in pages:
                     assert f"href='#{curve_anchor(rid, cno)}'" in sec
         else:
