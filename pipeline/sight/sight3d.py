@@ -650,8 +650,16 @@ class _Search:
         eye is searched from itself."""
         cur = np.asarray(start, dtype=float).copy()
         warm = cur > 0
-        if known is not None:
+        if known is not None and known.any():
+            # known to see everything up to start: go on from the last rung of the ladder
+            # searched from the eye below it, so the rungs beyond are the ones it would try
             warm &= ~known
+            rungs = [0.0]
+            top = float(np.max(cur[known]))
+            while rungs[-1] < top:
+                rungs.append(rungs[-1] + max(self.step, self.grow * rungs[-1]))
+            rungs = np.asarray(rungs)
+            cur[known] = rungs[np.searchsorted(rungs, cur[known], side="right") - 1]
         if warm.any():
             w = np.flatnonzero(warm)
             ok = self._visible(q[w], np.minimum(cur[w], self.dmax[q[w]]))
