@@ -448,6 +448,7 @@ def visible(grid: ObstructionGrid, x0, y0, z0, x1, y1, z1) -> np.ndarray:
         top = grid.levels[-1][0]
         n = np.maximum(np.ceil(ell / top), 1).astype(np.int64)
         line, k = _pieces(n)
+        prev = top
         for lev, (Fl, zc) in enumerate(reversed(grid.levels)):
             if lev:  # each piece kept from the level above is cut in r
                 r = prev // Fl
@@ -732,13 +733,15 @@ def _straight_reach(W: "_Ways", n: int, station: np.ndarray, way: np.ndarray, di
             ok = i < n - 1
             ds[e] = np.where(ok, A[nxt[j]] - A[i], 0.0)
             seg = np.minimum(i, n - 2)
-            ux[e], uy[e] = dx[seg] / np.where(ln[seg] > 0, ln[seg], 1.0), dy[seg] / np.where(ln[seg] > 0, ln[seg], 1.0)
+            lseg = np.where(ln[seg] > 0, ln[seg], 1.0)
+            ux[e], uy[e] = dx[seg] / lseg, dy[seg] / lseg
         else:
             j = np.maximum(i - 1, 0)
             ok = i > 0
             ds[e] = np.where(ok, A[i] - A[prv[j]], 0.0)
             seg = np.maximum(i - 1, 0)
-            ux[e], uy[e] = -dx[seg] / np.where(ln[seg] > 0, ln[seg], 1.0), -dy[seg] / np.where(ln[seg] > 0, ln[seg], 1.0)
+            lseg = np.where(ln[seg] > 0, ln[seg], 1.0)
+            ux[e], uy[e] = -dx[seg] / lseg, -dy[seg] / lseg
         ds[e] = np.where(ln[seg] > 0, ds[e], 0.0)
     return ds, ux, uy
 
