@@ -113,10 +113,11 @@ def main(argv=None) -> int:
             kinds[k] = kinds.get(k, 0) + v
     rate = km / wall
     per_core = km / cpu
-    cores = max(a.workers, 1)
-    print(f"3D sight stage: {km:.1f} km in {wall:.2f} s wall on {a.workers} process(es): {rate:.1f} km/s; "
-          f"{per_core:.1f} km/s per core of CPU time, so {cores * per_core:.1f} km/s on {cores} idle core(s); "
-          f"target {TARGET_KM_S:g} km/s on 2 cores: {'met' if 2 * per_core >= TARGET_KM_S else 'NOT met'}")
+    on_two = 2 * per_core  # the stage runs one road per process: two idle cores give twice one core's rate
+    print(f"3D sight stage: {km:.1f} km in {wall:.2f} s wall on {a.workers} process(es) ({rate:.1f} km/s on this "
+          f"machine as loaded); {per_core:.1f} km/s per core of CPU time (target {TARGET_KM_S / 2:g}), so "
+          f"{on_two:.1f} km/s on 2 idle cores against the target of {TARGET_KM_S:g} km/s: "
+          f"{'met' if on_two >= TARGET_KM_S else f'NOT met ({100 * on_two / TARGET_KM_S:.0f} % of it)'}")
     print("limits (station-directions):", ", ".join(f"{k} {v}" for k, v in sorted(kinds.items())))
     return 0
 

@@ -252,6 +252,33 @@ def test_equal_to_a_brute_force_within_one_station(seed):
             assert (slow < rules.lookahead_m - 1).sum() > 5  # the network does limit sight
 
 
+def test_straight_sweep_finds_a_short_hidden_stretch_like_the_brute_force():
+    """The plain brute force written above (every line sampled every 0.5 m, objects every metre)
+    on a straight level road with a short hollow 285-300 m along it (invented, test data only):
+    from the eyes before it the road in the hollow is hidden behind its near edge and seen
+    again beyond it. The one sweep along the straight lane (objects every 5 m) finds that
+    stretch within one station of the brute force from every eye; the ladder alone, its
+    objects a fifth of their distance apart out there, steps over it from some eyes (the
+    limit the sweep is there to narrow)."""
+    def z(q):
+        q = np.asarray(q, dtype=float)
+        return 100.0 - 1.5 * np.clip(1.0 - np.abs(q - 292.5) / 7.5, 0.0, 1.0)
+    s = np.arange(0.0, 700.0 + 1e-9, 5.0)
+    ang = np.radians(20.0)
+    x, y = 30 + s * np.cos(ang), 30 + s * np.sin(ang)
+    X, Y, tr = _grid_xy(0, 720, 0, 300)
+    dem = z((X - 30) * np.cos(ang) + (Y - 30) * np.sin(ang))
+    path = LanePath(s, x, y, z)
+    grid = obstruction_grid(dem, tr, path, HALF_WIDTH)
+    sweep = sight_3d_both_ways(path, grid, RULES)
+    ladder = sight_3d_both_ways(path, grid, RULES, straight=False)
+    eyes = np.arange(0, 56, 4)  # 0 to 275 m: the hollow within the look-ahead
+    slow = _brute(dem, tr, path, eyes, -1, 1, 1.8, RULES)
+    assert (slow < 300.0 - s[eyes]).all()  # the brute force does see the hollow hide the road
+    assert np.all(np.abs(sweep["sight_3d_fwd_m"][eyes] - slow) <= 5.0)
+    assert np.any(np.abs(ladder["sight_3d_fwd_m"][eyes] - slow) > 5.0)
+
+
 # --------------------------------------------------------------------------- what to clear
 def test_clearance_in_a_cut_matches_a_hand_integral():
     """Area and volume to clear on the batter curve, against the cross-section integrated by hand
