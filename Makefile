@@ -25,7 +25,7 @@ demo: $(VENV)/.installed
 	$(BIN)/sightaudit demo --out out/demo
 
 test: $(VENV)/.installed-test
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n auto --dist loadfile
 
 bench: $(VENV)/.installed
 	$(BIN)/python benchmarks/throughput.py --readme

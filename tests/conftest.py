@@ -58,9 +58,10 @@ def samples():
 
 @pytest.fixture(scope="session")
 def demo_out(tmp_path_factory):
-    """The demo's output folder, run once per test session."""
+    """The demo's output folder, with the field sheets, run once per test session (the tests of
+    the report, the tables, the sheets and the real clients all read this one run)."""
     from pipeline.cli import main
 
     out = tmp_path_factory.mktemp("demo") / "out"
-    assert main(["demo", "--out", str(out), "--quiet"]) == 0
+    assert main(["demo", "--out", str(out), "--quiet", "--profiles-pdf"]) == 0
     return out

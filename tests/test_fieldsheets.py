@@ -50,8 +50,9 @@ def _sheets_run(tmp_path_factory, *extra, config: str = "", roads: int | None = 
 
 
 @pytest.fixture(scope="module")
-def metric_out(tmp_path_factory):
-    return _sheets_run(tmp_path_factory)
+def metric_out(demo_out):
+    """The session's demo run (the bundled sample, metric, with the field sheets)."""
+    return demo_out
 
 
 @pytest.fixture(scope="module")

@@ -24,12 +24,9 @@ CHROME_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
 
 
 @pytest.fixture(scope="module")
-def demo_pdf_out(tmp_path_factory):
-    from pipeline.cli import main
-
-    out = tmp_path_factory.mktemp("demo_pdf") / "out"
-    assert main(["demo", "--out", str(out), "--quiet", "--profiles-pdf"]) == 0
-    return out
+def demo_pdf_out(demo_out):
+    """The session's demo run, which writes the field sheets too."""
+    return demo_out
 
 
 @pytest.fixture(scope="module")
