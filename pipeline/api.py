@@ -194,15 +194,19 @@ def audit(roads, ground, settings=None, *, progress: Progress | None = None, wor
     check_sight_settings(cfg)
     started = datetime.now(timezone.utc)
     temp = Path(tempfile.mkdtemp(prefix="sightaudit-inputs-"))
-    roads_path, roads_mem = _as_path(roads, temp, "roads")
-    ground_path, ground_mem = _as_path(ground, temp, "ground")
-    with contextlib.ExitStack() as stack:
-        if pool is None:
-            pool = stack.enter_context(worker_pool(cfg))
-        network = run_network(roads_path, ground_path, cfg, progress or Progress(), work_dir=work_dir,
-                              resume=resume, pool=pool)
-    summary = _summary(network, cfg, roads_path, ground_path, started, command,
-                       {"roads": roads_mem, "ground": ground_mem})
+    try:
+        roads_path, roads_mem = _as_path(roads, temp, "roads")
+        ground_path, ground_mem = _as_path(ground, temp, "ground")
+        with contextlib.ExitStack() as stack:
+            if pool is None:
+                pool = stack.enter_context(worker_pool(cfg))
+            network = run_network(roads_path, ground_path, cfg, progress or Progress(), work_dir=work_dir,
+                                  resume=resume, pool=pool)
+        summary = _summary(network, cfg, roads_path, ground_path, started, command,
+                           {"roads": roads_mem, "ground": ground_mem})
+    except BaseException:  # a refused or failed run leaves no temporary folder behind
+        shutil.rmtree(temp, ignore_errors=True)
+        raise
     result = AuditResult(network, summary, cfg, keep=temp)
     weakref.finalize(result, shutil.rmtree, temp, True)
     return result

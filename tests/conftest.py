@@ -3,10 +3,13 @@ small helpers that write input files of every supported kind."""
 
 from __future__ import annotations
 
+import atexit
 import os
+import shutil
 import tempfile
 
 _HOME = tempfile.mkdtemp(prefix="sightaudit-test-home-")
+atexit.register(shutil.rmtree, _HOME, True)
 os.environ.setdefault("MPLCONFIGDIR", os.path.join(_HOME, "mpl"))
 os.environ["XDG_CACHE_HOME"] = os.path.join(_HOME, "cache")
 os.environ["HOME"] = _HOME
