@@ -30,7 +30,7 @@ from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road
 from .mapview import network_map_svg
 from .figures import pyplot as figures_pyplot
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
-from .sight_figure import roadside_section
+from .sight_figure import roadside_pngs, roadside_section
 from .sites import site_text, worst_sites
 from .tables import curves_table, deficiencies_table
 from .workbook import brief_lines
@@ -327,7 +327,7 @@ def data_quality_html(dq: dict | None, units) -> str:
 
 def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]],
                  pages: list[dict] | None = None, pngs: list[str] | None = None, map_svg: str | None = None,
-                 road_pngs: dict | None = None) -> str:
+                 road_pngs: dict | None = None, roadside_pngs: dict | None = None) -> str:
     """The whole report as one HTML string.
 
     Parameters
@@ -357,6 +357,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
         Each road's long profile (:func:`road_pages`) as a data URI by road id, ``None`` or
         empty for a placeholder; a road not in it has no profile in the report. Drawn here
         when not given.
+    roadside_pngs : dict, optional
+        The roadside rows' plan views by rank
+        (:func:`pipeline.outputs.sight_figure.roadside_pngs`); drawn here when not given.
 
     Returns
     -------
@@ -379,7 +382,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     parts += _map_section(result, units, map_svg)
     parts += ["<div class='wide'>", *_inventory_section(result.evaluation.inventory, units, paged, anchors), "</div>"]
     parts += _curve_section(pages, pngs, units)
-    parts += roadside_section(result, units, cfg)
+    parts += roadside_section(result, units, cfg, roadside_pngs)
     parts += _roads_section(result, cfg, units, roads, paged, anchors, road_pngs)
     parts += _method_section(method)
     parts += _notes_section(result, summary, units)
