@@ -27,6 +27,7 @@ import pandas as pd
 from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
+from .figures import kept_figure as _kept_figure
 from .mapview import network_map_svg
 from .figures import pyplot as figures_pyplot
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
@@ -252,27 +253,6 @@ def road_png(spec: dict) -> str:
 
 
 ROAD_PNG_DPI = 90  # the road profiles' resolution: 945 by 288 pixels at their 10.5 by 3.2 inches
-_KEPT_FIGURES: dict = {}
-
-
-def _kept_figure(size: tuple[float, float], dpi: int):
-    """A figure of this size kept for the calling thread, to draw one road after another into
-    (:func:`road_figure` clears it first); made once, outside pyplot, so it is never left open
-    there."""
-    import threading
-
-    key = (threading.get_ident(), size, dpi)
-    fig = _KEPT_FIGURES.get(key)
-    if fig is None:
-        from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.figure import Figure
-
-        figures_pyplot()  # the figures' font sizes, before the figure takes them
-        fig = _KEPT_FIGURES[key] = Figure(figsize=size, dpi=dpi)
-        FigureCanvasAgg(fig)
-    return fig
-
-
 def _palette_png_uri(fig) -> str:
     """A figure as an inline PNG of at most 256 colours (a line drawing has few), which is about
     a quarter the size of the full-colour PNG and looks the same (no channel off by more than a
