@@ -37,7 +37,7 @@ def check_inputs(*args, **kwargs):
 
 
 def worker_pool(cfg):
-    from .runner.engines import worker_pool as pool
+    from .runner.pool import worker_pool as pool
 
     return pool(cfg)
 
