@@ -110,6 +110,8 @@ def _submit_all(pool, job: Job, order: list[int], rows_of, work: WorkFolder, tic
         rows, nj = rows_of(k)
         total[k], done[k] = _chunk_km(rows), 0.0
         futures[pool.submit(_run_chunk_to_folder, _job_for(job, rows), rows, nj, str(work.path), k)] = k
+    for _ in range(getattr(pool, "_max_workers", 0)):  # each worker, its chunks done, loads matplotlib
+        pool.submit(_pool.warm_up_figures)
 
     def credit(k, km):
         add = min(km, total[k] - done[k])

@@ -35,6 +35,24 @@ def _warm_up() -> int:
     return os.getpid()
 
 
+def warm_up_figures() -> int:
+    """Import matplotlib (Agg) in a worker whose chunks are done, while the main process judges
+    the network: the report's figures are drawn in the pool next, and the import takes about a
+    second.
+
+    Returns
+    -------
+    int
+        The worker's process id.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    import matplotlib.pyplot  # noqa: F401
+
+    return os.getpid()
+
+
 def worker_count(cfg: Config) -> int:
     """How many worker processes the run uses.
 
