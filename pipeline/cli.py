@@ -18,7 +18,6 @@ from .core.config import example_toml, load_config
 from .core.errors import InputError
 from .core.resources import sample_paths
 from .core.version import __version__
-from .outputs.method import run_units
 from .runner.progress import Progress
 
 # the audit itself (pipeline.api, the runner and the stages) is imported by the commands that
@@ -38,9 +37,15 @@ def check_inputs(*args, **kwargs):
 
 
 def worker_pool(cfg):
-    from .runner.engines import worker_pool as pool
+    from .runner.pool import worker_pool as pool
 
     return pool(cfg)
+
+
+def run_units(cfg):
+    from .outputs.method import run_units as units
+
+    return units(cfg)
 
 
 def get_set(*args, **kwargs):

@@ -18,6 +18,8 @@
 --   A station is deficient where its sight distance is limited by a curve (line of sight or
 --   headlight) and falls below the required SSD. A curve whose zone is mostly without usable
 --   ground data (judged = false) gets no verdict: its stations are never deficient.
+-- The stations' verdicts, the curves and the inventory are kept as tables once made: as views,
+-- every later statement reading them would compute them again (three times over for the summary).
 
 -- one row per station and direction of travel ('increasing' / 'decreasing' chainage), grade
 -- in the direction of travel (fraction), plus the curves' key points
@@ -66,7 +68,7 @@ CROSS JOIN cset c
 CROSS JOIN params p
 LEFT JOIN cspeeds t ON abs(t.speed - s.v_set) < 1e-6;
 
-CREATE OR REPLACE TEMP VIEW station_verdict AS
+CREATE OR REPLACE TEMP TABLE station_verdict AS
 SELECT e.*,
        (e.limit_kind IN ('line of sight', 'headlight') AND e.sight_m < e.ssd_required_m - 1e-9
         AND coalesce(c.judged, true)) AS short
@@ -76,7 +78,7 @@ LEFT JOIN curves c ON c.road_id = e.road_id AND c.curve_no = e.curve_no;
 -- one row per curve: its available sight distance (smallest over the stations whose sight it
 -- limits, in either direction; where it limits none, the smallest over its own span), the
 -- requirement at the speed judged there, the verdict, the speed it supports and the K check
-CREATE OR REPLACE TEMP VIEW curve_eval AS
+CREATE OR REPLACE TEMP TABLE curve_eval AS
 WITH limited AS (
     SELECT road_id, curve_no,
            min(sight_m) AS sight_min_m,

@@ -44,7 +44,7 @@ SELECT road_id, direction, curve_no, stretch_no,
 FROM numbered
 GROUP BY road_id, direction, curve_no, stretch_no;
 
-CREATE OR REPLACE TEMP VIEW inventory AS
+CREATE OR REPLACE TEMP TABLE inventory AS
 WITH scored AS (
     SELECT s.road_id, s.curve_no,
            coalesce(c.kind, CASE s.limit_kind WHEN 'line of sight' THEN 'crest' ELSE 'sag' END) AS kind,

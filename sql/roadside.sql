@@ -141,7 +141,7 @@ SELECT road_id, NULL::BIGINT AS curve_no, 'roadside' AS kind, direction, from_m,
 FROM scored;
 
 -- the inventory with the roadside rows, ranked together by the rule of inventory.sql
-CREATE OR REPLACE TEMP VIEW inventory_all AS
+CREATE OR REPLACE TEMP TABLE inventory_all AS
 SELECT row_number() OVER (ORDER BY verdict = 'deficient' DESC, priority_score DESC, shortfall_m DESC, road_id,
                                    from_m, direction) AS rank,
        * EXCLUDE (rank)

@@ -10,7 +10,8 @@ import shapely
 from pipeline.runner.network import run_network
 from pipeline.core.config import load_config
 from pipeline.evaluate.criteria import get_set
-from pipeline.plan.horizontal import fit_circle, horizontal_curves, min_radius_ft, min_radius_m, sight_line_offset
+from pipeline.plan.horizontal import (fit_circle, horizontal_curves, min_radius_ft, min_radius_m, savgol_quadratic,
+                                      savgol_quadratic_coeffs, sight_line_offset)
 from pipeline.plan.speed import (predict_v85, v85_crest_on_tangent, v85_horizontal_on_grade, v85_horizontal_with_crest,
                             v85_horizontal_with_sag)
 from pipeline.demo.synthetic import plan_polyline
@@ -68,6 +69,20 @@ def test_circle_fit_matches_exact_circle():
     cx, cy, r, rms = fit_circle(10 + 250 * np.cos(t), -20 + 250 * np.sin(t))
     assert (cx, cy, r) == pytest.approx((10.0, -20.0, 250.0), abs=1e-6)
     assert rms < 1e-8
+
+
+@pytest.mark.parametrize("n, window", [(5, 5), (40, 7), (301, 21), (1000, 41)])
+def test_savgol_matches_scipy(n, window):
+    """Reference library: scipy.signal.savgol_filter (polyorder 2, mode "interp") and savgol_coeffs
+    give the very same numbers, smoothed and first derivative, edges included."""
+    from scipy.signal import savgol_coeffs, savgol_filter
+
+    x = np.cumsum(np.random.default_rng(n).normal(size=n)) * 0.3
+    for deriv in (0, 1):
+        assert np.array_equal(savgol_quadratic(x, window, deriv, 5.0),
+                              savgol_filter(x, window, 2, deriv=deriv, delta=5.0))
+        assert np.array_equal(savgol_quadratic_coeffs(window, deriv, 5.0),
+                              savgol_coeffs(window, 2, deriv=deriv, delta=5.0))
 
 
 def test_operating_speed_equations():

@@ -332,6 +332,18 @@ def test_road_png_kept_figure_draws_each_road_afresh(demo_pages):
         assert (diff.max(axis=2) > 8).mean() < 0.01, page["road_id"]  # a few edge pixels of antialiased lines
 
 
+def test_curve_png_kept_figure_gives_the_fresh_figures_png(demo_pages):
+    """The curve pages are drawn one after another into one kept figure: each PNG is byte for byte
+    the one a fresh figure gives (matplotlib's own PNG of a new figure as the reference), the first
+    page again after another included, so nothing is left over from the page before."""
+    from pipeline.outputs.figures import curve_figure, curve_png, png_data_uri
+
+    _, pages, _ = demo_pages
+    assert len(pages) >= 2
+    for page in (pages[0], pages[1], pages[0]):
+        assert curve_png(page["spec"]) == png_data_uri(curve_figure(**page["spec"])), page["road_id"]
+
+
 def test_crest_and_sag_pages_carry_their_own_rows(demo_out, html):
     """Crest pages say what is hidden beyond the crest; sag pages do not, and speak of headlight
     sight (AASHTO Green Book ch. 3: sag curves are governed by headlight sight distance). Every page

@@ -119,9 +119,9 @@ def evaluate(roads: pd.DataFrame, profiles, curves: pd.DataFrame, keypoints, haz
         if roadside:
             con.sql(sql_text("roadside"))
         curve_eval = con.sql("SELECT * FROM curve_eval ORDER BY road_id, curve_no").df()
-        inventory = con.sql("SELECT * FROM inventory_all" if roadside else
+        inventory = con.sql("SELECT * FROM inventory_all ORDER BY rank" if roadside else
                             "SELECT *, NULL::BIGINT AS hcurve_no, NULL::DOUBLE AS clear_area_m2, "
-                            "NULL::DOUBLE AS clear_volume_m3 FROM inventory").df()
+                            "NULL::DOUBLE AS clear_volume_m3 FROM inventory ORDER BY rank").df()
         summary = con.sql(sql_text("summary")).df()
     finally:
         con.close()

@@ -109,10 +109,11 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None, progress=
         use_pool = pool is not None and pages is not None
         futures = [pool.submit(report.curve_png, p["spec"]) for p in pages] if use_pool else None
         road_futures = [pool.submit(report.road_png, p["spec"]) for p in roads] if use_pool else None
+        roadside = _roadside_figures(result, cfg, pool if use_pool else None, failures) if pages is not None else {}
         method = _write_data_outputs(folder, result, summary, cfg, units, tick)
         if pages is not None:
             _write_report(folder, result, summary, cfg, units, method, pages, futures, failures, roads,
-                          road_futures, tick)
+                          road_futures, tick, roadside)
         if cfg["output.profiles_pdf"]:
             try:
                 summary["profiles_pdf"] = report.write_profiles_pdf(folder / "profiles.pdf", result, units,
@@ -122,6 +123,16 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None, progress=
                 failures.append(_failure("profiles.pdf", exc))
             tick(what="profiles.pdf")
     return failures
+
+
+def _roadside_figures(result, cfg, pool, failures: list[dict]) -> dict | None:
+    """The roadside rows' plan views (:func:`pipeline.outputs.sight_figure.roadside_pngs`), started
+    in ``pool`` when given; ``None`` (drawn with the report) where they cannot be gathered."""
+    try:
+        return report.roadside_pngs(result, cfg, pool) if pool is not None else None
+    except Exception as exc:
+        failures.append(_failure("report.html roadside plan views", exc))
+        return None
 
 
 def _write_data_outputs(folder: Path, result, summary: dict, cfg, units, tick) -> list[tuple[str, str]]:
@@ -152,10 +163,11 @@ def _write_data_outputs(folder: Path, result, summary: dict, cfg, units, tick) -
 
 def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[tuple[str, str]],
                   pages: list[dict], futures: list | None, failures: list[dict], roads: list[dict],
-                  road_futures: list | None, tick) -> None:
-    """The overview map (inline SVG, its labels linked to the curve pages), the curve figures and
-    the roads' long profiles (from ``futures`` and ``road_futures`` where drawn in a pool) and
-    report.html; a figure that fails gives a placeholder, a report that fails is left out."""
+                  road_futures: list | None, tick, roadside: dict | None = None) -> None:
+    """The overview map (inline SVG, its labels linked to the curve pages), the curve figures,
+    the roads' long profiles and the roadside plan views (from ``futures``, ``road_futures`` and
+    ``roadside`` where drawn in a pool) and report.html; a figure that fails gives a placeholder,
+    a report that fails is left out."""
     try:
         paged = {(p["road_id"], int(p["curve_no"])) for p in pages}
         map_svg = report.network_map_svg(result, result.evaluation.inventory, units, paged)
@@ -182,7 +194,7 @@ def _write_report(folder: Path, result, summary: dict, cfg, units, method: list[
         tick(what=f"road profile {i + 1} of {len(roads)}")
     try:
         html_text = report.build_report(result, summary, cfg, units, CAUTION_TEXT, method, pages, pngs, map_svg,
-                                        road_pngs)
+                                        road_pngs, roadside)
         (folder / "report.html").write_text(html_text, encoding="utf-8")
     except Exception as exc:
         (folder / "report.html").unlink(missing_ok=True)

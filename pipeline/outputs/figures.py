@@ -41,6 +41,40 @@ def pyplot():
     return plt
 
 
+_KEPT_FIGURES: dict = {}
+
+
+def kept_figure(size: tuple[float, float], dpi: int):
+    """A figure of this size kept for the calling thread, to draw one page or road after another
+    into (:func:`curve_figure` and :func:`road_figure` clear it first); made once, outside pyplot,
+    so it is never left open there.
+
+    Parameters
+    ----------
+    size : (float, float)
+        Width and height (inches).
+    dpi : int
+        Its resolution (dots per inch).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure, on the Agg canvas.
+    """
+    import threading
+
+    key = (threading.get_ident(), size, dpi)
+    fig = _KEPT_FIGURES.get(key)
+    if fig is None:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+
+        pyplot()  # the figures' font sizes, before the figure takes them
+        fig = _KEPT_FIGURES[key] = Figure(figsize=size, dpi=dpi)
+        FigureCanvasAgg(fig)
+    return fig
+
+
 def png_data_uri(fig, dpi: int = 100) -> str:
     """The figure as an inline PNG; the figure is closed.
 
@@ -68,7 +102,9 @@ def png_data_uri(fig, dpi: int = 100) -> str:
 def curve_png(spec: dict) -> str:
     """One curve page's figure as an inline PNG.
 
-    A top-level function, so that a pool of processes can draw the pages side by side.
+    A top-level function, so that a pool of processes can draw the pages side by side; each
+    process (each thread) draws its pages one after another into one kept figure
+    (:func:`kept_figure`), which spares making a figure per page and gives the same PNG.
 
     Parameters
     ----------
@@ -81,12 +117,18 @@ def curve_png(spec: dict) -> str:
     str
         A ``data:image/png;base64,...`` URI.
     """
-    return png_data_uri(curve_figure(**spec))
+    fig = curve_figure(**spec, fig=kept_figure(CURVE_FIGURE_SIZE, dpi=100))
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=100)
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+CURVE_FIGURE_SIZE = (10.5, 4.3)  # inches
 
 
 # ------------------------------------------------------------------- curve figure
 def curve_figure(prof: pd.DataFrame, curve: pd.Series, rows: pd.DataFrame, hcurves: pd.DataFrame, rules, units,
-                 title: str):
+                 title: str, fig=None):
     """The long profile around a deficient curve.
 
     Ground samples, the fitted alignment, PVC/PVI/PVT, the driver's sight line at
@@ -110,10 +152,14 @@ def curve_figure(prof: pd.DataFrame, curve: pd.Series, rows: pd.DataFrame, hcurv
         The run's output units.
     title : str
         The figure's title.
+    fig : matplotlib.figure.Figure, optional
+        A figure of :data:`CURVE_FIGURE_SIZE` to draw into, cleared first (:func:`kept_figure`);
+        a new one when not given.
 
     Returns
     -------
     matplotlib.figure.Figure
+        ``fig`` when given.
 
     Notes
     -----
@@ -129,7 +175,11 @@ def curve_figure(prof: pd.DataFrame, curve: pd.Series, rows: pd.DataFrame, hcurv
     hi = min(max(curve["pvt_m"], rows["to_m"].max()) + span, prof["chainage_m"].max())
     p = prof[(prof["chainage_m"] >= lo) & (prof["chainage_m"] <= hi)]
     L, E = units.length, units.length_label
-    fig, ax = plt.subplots(figsize=(10.5, 4.3))
+    if fig is None:
+        fig, ax = plt.subplots(figsize=CURVE_FIGURE_SIZE)
+    else:
+        fig.clear()
+        ax = fig.add_subplot()
     fig.subplots_adjust(left=0.07, right=0.66, bottom=0.13, top=0.92)
     _profile_and_pv_marks(ax, p, curve, L)
     _sight_lines(ax, p, curve, worst, rules, units)

@@ -27,10 +27,11 @@ import pandas as pd
 from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
+from .figures import kept_figure as _kept_figure
 from .mapview import network_map_svg
 from .figures import pyplot as figures_pyplot
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
-from .sight_figure import roadside_section
+from .sight_figure import roadside_pngs, roadside_section
 from .sites import site_text, worst_sites
 from .tables import curves_table, deficiencies_table
 from .workbook import brief_lines
@@ -252,27 +253,6 @@ def road_png(spec: dict) -> str:
 
 
 ROAD_PNG_DPI = 90  # the road profiles' resolution: 945 by 288 pixels at their 10.5 by 3.2 inches
-_KEPT_FIGURES: dict = {}
-
-
-def _kept_figure(size: tuple[float, float], dpi: int):
-    """A figure of this size kept for the calling thread, to draw one road after another into
-    (:func:`road_figure` clears it first); made once, outside pyplot, so it is never left open
-    there."""
-    import threading
-
-    key = (threading.get_ident(), size, dpi)
-    fig = _KEPT_FIGURES.get(key)
-    if fig is None:
-        from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.figure import Figure
-
-        figures_pyplot()  # the figures' font sizes, before the figure takes them
-        fig = _KEPT_FIGURES[key] = Figure(figsize=size, dpi=dpi)
-        FigureCanvasAgg(fig)
-    return fig
-
-
 def _palette_png_uri(fig) -> str:
     """A figure as an inline PNG of at most 256 colours (a line drawing has few), which is about
     a quarter the size of the full-colour PNG and looks the same (no channel off by more than a
@@ -327,7 +307,7 @@ def data_quality_html(dq: dict | None, units) -> str:
 
 def build_report(result, summary: dict, cfg, units, caution: str, method: list[tuple[str, str]],
                  pages: list[dict] | None = None, pngs: list[str] | None = None, map_svg: str | None = None,
-                 road_pngs: dict | None = None) -> str:
+                 road_pngs: dict | None = None, roadside_pngs: dict | None = None) -> str:
     """The whole report as one HTML string.
 
     Parameters
@@ -357,6 +337,9 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
         Each road's long profile (:func:`road_pages`) as a data URI by road id, ``None`` or
         empty for a placeholder; a road not in it has no profile in the report. Drawn here
         when not given.
+    roadside_pngs : dict, optional
+        The roadside rows' plan views by rank
+        (:func:`pipeline.outputs.sight_figure.roadside_pngs`); drawn here when not given.
 
     Returns
     -------
@@ -379,7 +362,7 @@ def build_report(result, summary: dict, cfg, units, caution: str, method: list[t
     parts += _map_section(result, units, map_svg)
     parts += ["<div class='wide'>", *_inventory_section(result.evaluation.inventory, units, paged, anchors), "</div>"]
     parts += _curve_section(pages, pngs, units)
-    parts += roadside_section(result, units, cfg)
+    parts += roadside_section(result, units, cfg, roadside_pngs)
     parts += _roads_section(result, cfg, units, roads, paged, anchors, road_pngs)
     parts += _method_section(method)
     parts += _notes_section(result, summary, units)

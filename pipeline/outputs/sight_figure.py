@@ -100,7 +100,57 @@ def roadside_png(row: pd.Series, stations: pd.DataFrame, clear: pd.DataFrame, la
     return png_data_uri(fig)
 
 
-def roadside_section(result, units, cfg) -> list[str]:
+def _roadside_rows(result) -> pd.DataFrame:
+    """The inventory's roadside rows, in rank order."""
+    inv = result.evaluation.inventory
+    road = inv[inv["kind"] == "roadside"] if "kind" in inv else inv.iloc[:0]
+    return road.sort_values("rank")
+
+
+def _roadside_spec(result, r, cfg) -> dict:
+    """The keyword arguments of :func:`roadside_png` for one roadside row ``r`` (a named tuple)."""
+    cl = result.clearances
+    mine = cl[(cl["road_id"] == r.road_id) & (cl["direction"] == r.direction)
+              & (cl["from_m"] <= r.to_m + result.step_m / 2) & (cl["to_m"] >= r.from_m - result.step_m / 2)] \
+        if len(cl) else cl
+    return {"row": pd.Series(r._asdict()), "stations": result.road_profile(r.road_id), "clear": mine,
+            "lane_offset_m": lane_width(cfg) / 2.0, "traffic_side": cfg["sight.traffic_side"]}
+
+
+def roadside_pngs(result, cfg, pool=None) -> dict:
+    """The plan views of the roadside rows, drawn in ``pool`` when given.
+
+    Parameters
+    ----------
+    result : NetworkResult
+        The run's result (inventory, stations, clearances).
+    cfg : Config
+        The run's settings (lane width, traffic side).
+    pool : concurrent.futures.Executor, optional
+        Where to draw them; without it they are drawn here, one after another.
+
+    Returns
+    -------
+    dict
+        ``rank -> value``: a ``data:image/png`` URI, a future of one (with a pool), or the
+        exception that stopped the figure (a placeholder in :func:`roadside_section`).
+    """
+    out: dict = {}
+    for r in _roadside_rows(result).itertuples():
+        try:
+            spec = _roadside_spec(result, r, cfg)
+            out[r.rank] = pool.submit(_roadside_png_of, spec) if pool is not None else roadside_png(**spec)
+        except Exception as exc:  # a figure that fails leaves a placeholder
+            out[r.rank] = exc
+    return out
+
+
+def _roadside_png_of(spec: dict) -> str:
+    """:func:`roadside_png` of one spec (a top-level function, for a pool of processes)."""
+    return roadside_png(**spec)
+
+
+def roadside_section(result, units, cfg, pngs: dict | None = None) -> list[str]:
     """The report's section on roadside sight: one entry per roadside row of the inventory, in
     rank order, with its facts and plan view (a placeholder where the figure fails).
 
@@ -113,14 +163,15 @@ def roadside_section(result, units, cfg) -> list[str]:
         and m³).
     cfg : Config
         The run's settings (lane width, traffic side).
+    pngs : dict, optional
+        The plan views from :func:`roadside_pngs` (drawn here when not given).
 
     Returns
     -------
     list of str
         HTML parts; a sentence saying why where there is no roadside row.
     """
-    inv = result.evaluation.inventory
-    road = inv[inv["kind"] == "roadside"] if "kind" in inv else inv.iloc[:0]
+    road = _roadside_rows(result)
     head = "<section id='roadside'><h2>Roadside sight (3D sight lines)</h2>"
     if not len(road):
         dem = (result.ground_info or {}).get("kind") == "dem"
@@ -128,7 +179,8 @@ def roadside_section(result, units, cfg) -> list[str]:
                "stopping sight distance while the road's profile does not." if dem and cfg["sight.three_d"] else
                "Not measured: the 3D sight lines need a DEM as the ground model (and sight.three_d on).")
         return [head, f"<p>{html.escape(why)}</p></section>"]
-    cl = result.clearances
+    if pngs is None:
+        pngs = roadside_pngs(result, cfg)
     parts = [head,
              "<p>Stretches where the ground or objects beside the road, not the road's own profile, hide the "
              "road ahead within the required stopping sight distance: the sight lines measured in 3D over the DEM "
@@ -136,11 +188,7 @@ def roadside_section(result, units, cfg) -> list[str]:
              "available (solid), the area to clear and the points that block the view.</p>"]
     L = units.length_label
     conv = (lambda v: v / units.divisor("x_m"))  # noqa: E731
-    for r in road.sort_values("rank").itertuples():
-        row = pd.Series(r._asdict())
-        mine = cl[(cl["road_id"] == r.road_id) & (cl["direction"] == r.direction)
-                  & (cl["from_m"] <= r.to_m + result.step_m / 2) & (cl["to_m"] >= r.from_m - result.step_m / 2)] \
-            if len(cl) else cl
+    for r in road.itertuples():
         facts = [("rank", str(r.rank)), ("road", f"{r.road_id} {r.road_name or ''}".strip()),
                  ("direction", r.direction), ("driver positions", f"{conv(r.from_m):.0f}-{conv(r.to_m):.0f} {L}"),
                  ("horizontal curve", str(int(r.hcurve_no)) if pd.notna(r.hcurve_no) and r.hcurve_no else "none"),
@@ -153,8 +201,10 @@ def roadside_section(result, units, cfg) -> list[str]:
                  ("verdict", f"{r.verdict} ({r.confidence} confidence)"), ("first thought", str(r.treatment_hint))]
         rows = "".join(f"<tr><th>{html.escape(k)}</th><td>{html.escape(v)}</td></tr>" for k, v in facts)
         try:
-            stations = result.road_profile(r.road_id)
-            png = roadside_png(row, stations, mine, lane_width(cfg) / 2.0, cfg["sight.traffic_side"])
+            png = pngs.get(r.rank)
+            png = png.result() if hasattr(png, "result") else png
+            if not isinstance(png, str):
+                raise png if isinstance(png, Exception) else ValueError("no plan view")
             img = f"<img alt='Plan view of {html.escape(str(r.road_id))} roadside sight' src='{png}'>"
         except Exception:  # a figure that fails leaves a placeholder; the facts stand
             img = "<p class='small'>(the plan view could not be drawn)</p>"

@@ -97,10 +97,8 @@ def heading_curvature(line, step_m: float, smooth_m: float, poly=None
     h = ch[1] - ch[0] if n > 1 else step_m
     win = int(round(smooth_m / h)) | 1
     if win >= 5 and n > win:
-        from scipy.signal import savgol_filter  # scipy.signal is slow to import: only where used
-
-        smooth = savgol_filter(head, win, 2)
-        curv = savgol_filter(head, win, 2, deriv=1, delta=h)
+        smooth = savgol_quadratic(head, win)
+        curv = savgol_quadratic(head, win, deriv=1, delta=h)
         noise = mad_sigma(head - smooth)
         gain = derivative_noise_gain(win, h)
         return ch, smooth, curv, noise * gain
@@ -130,9 +128,93 @@ def derivative_noise_gain(window: int, step_m: float) -> float:
     ----------
     Savitzky, A. and Golay, M. J. E. (1964). *Analytical Chemistry* 36(8), 1627-1639.
     """
-    from scipy.signal import savgol_coeffs
+    return float(np.sqrt(np.sum(savgol_quadratic_coeffs(window, deriv=1, delta=step_m) ** 2)))
 
-    return float(np.sqrt(np.sum(savgol_coeffs(window, 2, deriv=1, delta=step_m) ** 2)))
+
+def savgol_quadratic_coeffs(window: int, deriv: int = 0, delta: float = 1.0) -> np.ndarray:
+    """Convolution weights of the quadratic Savitzky-Golay filter (or its first derivative).
+
+    Parameters
+    ----------
+    window : int
+        Window length (samples, odd, at least 3).
+    deriv : {0, 1}
+        0 for the smoothed value, 1 for its first derivative.
+    delta : float
+        Sample spacing (m); the derivative is per ``delta``.
+
+    Returns
+    -------
+    ndarray
+        ``window`` weights, in convolution order: the least-squares solution of
+        ``A c = e_deriv * deriv! / delta^deriv`` with ``A[k, i] = x_i^k``, ``x`` the offsets
+        from the window's centre (reversed), as :func:`scipy.signal.savgol_coeffs` computes
+        them (the same operations, so the same numbers; scipy.signal is not imported because
+        it takes about a second to import).
+
+    References
+    ----------
+    Savitzky, A. and Golay, M. J. E. (1964). *Analytical Chemistry* 36(8), 1627-1639.
+    """
+    from scipy.linalg import lstsq
+
+    half = window // 2
+    x = np.arange(-half, window - half, dtype=np.float64)[::-1]
+    A = x ** np.arange(3, dtype=np.float64).reshape(-1, 1)
+    y = np.zeros(3)
+    y[deriv] = 1.0 / (delta ** deriv)
+    return lstsq(A, y, cond=np.finfo(np.float64).eps * max(A.shape))[0]
+
+
+def savgol_quadratic(values: np.ndarray, window: int, deriv: int = 0, delta: float = 1.0) -> np.ndarray:
+    """Quadratic Savitzky-Golay smoothing (or first derivative) of evenly spaced values.
+
+    Inside, the convolution with :func:`savgol_quadratic_coeffs`; within half a window of
+    either end, a quadratic fitted by least squares to the first (last) ``window`` values and
+    evaluated there (the ``mode="interp"`` edges of :func:`scipy.signal.savgol_filter`, whose
+    operations this repeats so that the numbers are the same).
+
+    Parameters
+    ----------
+    values : ndarray
+        Evenly spaced values (at least ``window`` of them).
+    window : int
+        Window length (samples, odd, at least 3).
+    deriv : {0, 1}
+        0 for the smoothed values, 1 for their first derivative.
+    delta : float
+        Sample spacing; the derivative is per ``delta``.
+
+    Returns
+    -------
+    ndarray
+        The filtered values, as many as ``values``.
+
+    References
+    ----------
+    Savitzky, A. and Golay, M. J. E. (1964). *Analytical Chemistry* 36(8), 1627-1639.
+    """
+    from scipy.linalg import lstsq
+    from scipy.ndimage import convolve1d
+
+    x = np.asarray(values, dtype=np.float64)
+    out = convolve1d(x, savgol_quadratic_coeffs(window, deriv, delta), mode="constant")
+    half, n = window // 2, len(x)
+    t = np.arange(0, window, dtype=np.float64)
+    lhs = t[:, None] ** np.array([2.0, 1.0, 0.0])[None, :]
+    scale = np.sqrt(np.sum(lhs * lhs, axis=0))
+    lhs /= scale
+    for w0, i0, i1 in ((0, 0, half), (n - window, n - half, n)):
+        c = lstsq(lhs, x[w0:w0 + window].reshape(-1, 1), cond=window * np.finfo(np.float64).eps)[0]
+        c = (c.T / scale).T
+        if deriv:
+            c = c[:-1].copy() * np.array([2.0, 1.0]).reshape(2, 1)
+        at = np.arange(i0 - w0, i1 - w0, dtype=np.float64).reshape(-1, 1)
+        poly = np.zeros_like(at)
+        for j in range(c.shape[0]):
+            poly = poly * at + c[j, ...]
+        out[i0:i1] = (poly / (delta ** deriv)).reshape(-1)
+    return out
 
 
 def fit_circle(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:

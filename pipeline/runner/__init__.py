@@ -6,6 +6,7 @@
 - :mod:`.chunks`      chunks of roads and the layouts of the tables they write
 - :mod:`.workfolder`  chunk results on disk, and when they can be reused
 - :mod:`.engines`     one process, a pool of processes, or a Dask cluster
+- :mod:`.pool`        the pool of worker processes (a light module, made before the rest loads)
 - :mod:`.result`      a finished run read back with DuckDB, and its accounting
 - :mod:`.progress`    what the run tells the user
 - :mod:`.roadwork`    the per-road stages of one chunk

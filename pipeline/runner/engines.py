@@ -13,11 +13,8 @@ a queue, so progress moves road by road, in km, rather than chunk by chunk.
 
 from __future__ import annotations
 
-import contextlib
-import multiprocessing
-import os
 import queue as queue_module
-from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures import FIRST_COMPLETED, wait
 from pathlib import Path
 
 import pandas as pd
@@ -28,83 +25,8 @@ from ..ingest.readers import PointGround
 from .roadwork import Job, process_chunk, road_km
 from .workfolder import WorkFolder, write_chunk
 
-BLAS_THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
-
-_ROAD_QUEUE = None  # in a worker of the local pool: where each road done is reported
-
-
-def _init_worker(road_queue) -> None:
-    """Worker start-up (which imports this module, and with it the per-road stages): keep the
-    queue that progress goes to."""
-    global _ROAD_QUEUE
-    _ROAD_QUEUE = road_queue
-
-
-def _warm_up() -> int:
-    """A no-op task: handing one to each worker starts the processes at once."""
-    return os.getpid()
-
-
-def worker_count(cfg: Config) -> int:
-    """How many worker processes the run uses.
-
-    Parameters
-    ----------
-    cfg : Config
-        The run's settings (``run.workers``; 0 or less means all cores).
-
-    Returns
-    -------
-    int
-        The number of workers, at least 1.
-    """
-    n = cfg["run.workers"]
-    return n if n > 0 else (os.cpu_count() or 1)
-
-
-@contextlib.contextmanager
-def worker_pool(cfg: Config):
-    """A pool of worker processes for the run (``None`` with one worker or another engine).
-
-    Workers are started with 'spawn' (clean processes, no inherited threads or open files)
-    and one BLAS thread each: the workers already fill the cores, and the matrices are small.
-    Every process is started at once (one no-op task each), so that they start up while this
-    process reads the inputs; the environment is set for the pool's whole life (any process
-    it starts inherits it). Each worker reports the roads it finishes on the pool's
-    ``road_queue`` (for the progress display).
-
-    Parameters
-    ----------
-    cfg : Config
-        The run's settings (``run.engine``, ``run.workers``).
-
-    Returns
-    -------
-    contextlib.AbstractContextManager
-        Yields a ``ProcessPoolExecutor``, or ``None`` when the run needs no pool.
-    """
-    workers = worker_count(cfg)
-    if cfg["run.engine"] != "local" or workers <= 1:
-        yield None
-        return
-    saved = {k: os.environ.get(k) for k in BLAS_THREAD_VARS + ("MPLBACKEND",)}
-    os.environ.update({k: "1" for k in BLAS_THREAD_VARS} | {"MPLBACKEND": "Agg"})
-    ctx = multiprocessing.get_context("spawn")
-    road_queue = ctx.Queue()
-    try:
-        with ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker,
-                                 initargs=(road_queue,)) as pool:
-            pool.road_queue = road_queue
-            for _ in range(workers):  # start every process now, while the inputs are read
-                pool.submit(_warm_up)
-            yield pool
-    finally:
-        for k, v in saved.items():
-            if v is None:
-                os.environ.pop(k, None)
-            else:
-                os.environ[k] = v
-        road_queue.close()
+from . import pool as _pool
+from .pool import BLAS_THREAD_VARS, worker_count, worker_pool  # noqa: F401  (their home before)
 
 
 def run_chunks(job: Job, table: pd.DataFrame, chunks: list, todo: list[int], net_junctions: dict,
@@ -172,7 +94,7 @@ def _chunk_km(rows: pd.DataFrame) -> float:
 def _run_chunk_to_folder(job: Job, rows: pd.DataFrame, net_junctions: dict, folder: str, k: int) -> dict:
     """Worker side of the local engine: run a chunk and write it (the worker shares the disk);
     each road done is reported on the pool's queue, when it has one."""
-    q = _ROAD_QUEUE
+    q = _pool.road_queue()
     on_road = (lambda km: q.put((k, km))) if q is not None else None
     write_chunk(Path(folder), k, process_chunk(job, rows, net_junctions, on_road=on_road))
     return {"k": k, "n": len(rows)}
@@ -188,6 +110,8 @@ def _submit_all(pool, job: Job, order: list[int], rows_of, work: WorkFolder, tic
         rows, nj = rows_of(k)
         total[k], done[k] = _chunk_km(rows), 0.0
         futures[pool.submit(_run_chunk_to_folder, _job_for(job, rows), rows, nj, str(work.path), k)] = k
+    for _ in range(getattr(pool, "_max_workers", 0)):  # each worker, its chunks done, loads matplotlib
+        pool.submit(_pool.warm_up_figures)
 
     def credit(k, km):
         add = min(km, total[k] - done[k])

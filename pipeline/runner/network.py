@@ -85,7 +85,7 @@ def run_network(roads_path: str | Path, ground_path: str | Path, cfg: Config,
     resume : bool
         Reuse the chunks already finished in ``work_dir`` for the same inputs and settings.
     pool : concurrent.futures.Executor, optional
-        A pool of workers to run the chunks in (see :func:`pipeline.runner.engines.worker_pool`).
+        A pool of workers to run the chunks in (see :func:`pipeline.runner.pool.worker_pool`).
 
     Returns
     -------
