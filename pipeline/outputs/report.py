@@ -29,9 +29,8 @@ from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
 from .figures import kept_figure as _kept_figure
 from .mapview import network_map_svg
-from .figures import pyplot as figures_pyplot
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
-from .sight_figure import roadside_pngs, roadside_section
+from .sight_figure import roadside_pngs, roadside_section  # noqa: F401  (export draws them through this module)
 from .sites import site_text, worst_sites
 from .tables import curves_table, deficiencies_table
 from .workbook import brief_lines
