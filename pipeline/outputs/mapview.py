@@ -39,6 +39,7 @@ import numpy as np
 import shapely
 
 from ..profile.stations import Polyline
+from .anchors import curve_anchor
 from .report_style import ROAD_GREY, SEVERITY_COLOURS
 
 FONT = "DejaVu Sans, Arial, sans-serif"
@@ -135,8 +136,6 @@ def map_inputs(table, inventory, units, paged: set) -> tuple[list[MapRoad], list
     (list of MapRoad, list of MapStretch)
         Stretches on a road without a centreline are left out (there is nowhere to draw them).
     """
-    from .report import curve_anchor  # the report owns its anchors; imported here, as the report imports this module
-
     roads, lines = [], {}
     names = table["name"] if "name" in table else table["road_id"]
     skips = table["skip_reason"] if "skip_reason" in table else [None] * len(table)

@@ -28,6 +28,7 @@ from .fieldsheets import write_profiles_pdf
 from .method import data_quality_facts
 from .figures import SEVERITY_STYLE, curve_figure, curve_png, png_data_uri, road_figure
 from .figures import kept_figure as _kept_figure
+from .anchors import curve_anchor, road_anchor
 from .mapview import network_map_svg
 from .report_style import CSS, FIGURE_MISSING, LOADED_JS, page_css
 from .sight_figure import roadside_pngs, roadside_section  # noqa: F401  (export draws them through this module)
@@ -54,24 +55,6 @@ def _num(v, nd=0) -> str:
     return "" if not np.isfinite(f) else f"{f:,.{nd}f}"
 
 
-def _slug(road_id) -> str:
-    """A road id as letters, digits and hyphens (other characters become hyphens)."""
-    return "".join(ch if ch.isascii() and ch.isalnum() else "-" for ch in str(road_id))
-
-
-def curve_anchor(road_id, curve_no) -> str:
-    """The id of a curve's page in the report (letters, digits and hyphens only)."""
-    return f"curve-{_slug(road_id)}-{int(curve_no)}"
-
-
-def road_anchor(road_id) -> str:
-    """The id of a road's section of the report's road-by-road index (letters, digits and hyphens
-    only).
-
-    Two ids that differ only in characters other than ASCII letters and digits would share a
-    slug; :func:`_road_anchors` tells them apart by a number.
-    """
-    return f"road-{_slug(road_id)}"
 
 
 def _road_anchors(road_ids) -> dict:

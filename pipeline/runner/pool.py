@@ -19,10 +19,10 @@ _ROAD_QUEUE = None  # in a worker of the local pool: where each road done is rep
 
 def _init_worker(road_queue) -> None:
     """Worker start-up: keep the queue that progress goes to, and import the per-road stages
-    (:mod:`pipeline.runner.engines`) at once, while the main process reads the inputs."""
+    (:mod:`pipeline.runner.roadwork`) at once, while the main process reads the inputs."""
     global _ROAD_QUEUE
     _ROAD_QUEUE = road_queue
-    from . import engines  # noqa: F401  (the stages, imported once per worker)
+    from . import roadwork  # noqa: F401  (the stages, imported once per worker)
 
 
 def road_queue():
