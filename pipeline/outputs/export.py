@@ -17,10 +17,9 @@ from __future__ import annotations
 import contextlib
 from pathlib import Path
 
-from ..core.units import OutputUnits
 from . import report
 from .geopackage import write_gpkg
-from .method import CAUTION_TEXT, method_lines, priority_formula, priority_terms
+from .method import CAUTION_TEXT, method_lines, priority_formula, priority_terms, run_units
 from .runfiles import staging_folder, write_run_json
 from .tables import (COLUMN_NOTES, CURVE_CONTRACT, CURVE_EXTRA, DEFICIENCY_CONTRACT, DEFICIENCY_EXTRA, column_note,
                      curves_table, deficiencies_table, round_for_reading, write_profiles_from_work, write_tables)
@@ -97,7 +96,7 @@ def write_outputs(folder: Path, result, summary: dict, cfg, pool=None, progress=
         The outputs lost, each ``{"output", "error"}`` (recorded in ``run.json``).
     """
     failures: list[dict] = []
-    units = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
+    units = run_units(cfg)
     try:
         pages = report.report_pages(result, cfg, units)
         roads = report.road_pages(result, cfg, units)

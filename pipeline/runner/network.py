@@ -34,12 +34,12 @@ import pandas as pd
 
 from ..core.version import __version__
 from ..core.config import Config
-from ..core.units import OutputUnits
 from ..evaluate.criteria import get_set
 from ..evaluate.judge import evaluate
 from ..evaluate.quality import data_quality
 from ..ingest.readers import PointGround, Roads, file_sha256, open_ground, read_features, read_roads
 from ..outputs.export import CAUTION_TEXT as CAUTION
+from ..outputs.method import run_units
 from .chunks import chunk_layout_key, chunk_rows, road_costs
 from .engines import run_chunks, worker_count, worker_pool
 from .evidence import examine, screen_speeds, speed_notes
@@ -280,6 +280,6 @@ def run_summary(result: NetworkResult, roads_path: str | Path, ground_path: str 
 
 def _units_info(cfg: Config) -> dict:
     """The output units as recorded in ``run.json``."""
-    u = OutputUnits(cfg["output.units"], cfg["output.us_foot"])
+    u = run_units(cfg)
     return {"system": u.system, "length": u.length_label, "speed": u.speed_label, "distance": u.distance_label,
             "factor_km": u.km_per_distance}
